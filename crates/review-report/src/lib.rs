@@ -1,0 +1,2 @@
+//! placeholder crate root, replaced by its owner.
+#![deny(missing_docs)]

@@ -1,0 +1,2 @@
+//! ccm-triage command-line tool.
+fn main() {}

@@ -1,0 +1,1 @@
+//! Simulator of labelled coupled systems. INTERFACE SKETCH: the simulator work replaces it.
