@@ -1,2 +1,48 @@
-//! ccm-triage command-line tool.
-fn main() {}
+//! `ccm-triage`: a thin command-line layer over the library crates.
+//!
+//! Exit status: 0 on success, 1 when the input or options are wrong (the message says which
+//! file, row, column or option and how to fix it), 2 for usage errors reported by the parser.
+
+mod cli;
+mod commands;
+mod config;
+mod progress;
+
+use std::process::ExitCode;
+
+use clap::Parser;
+
+fn main() -> ExitCode {
+    let cli = cli::Cli::parse();
+    match run(cli) {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(err) => {
+            let mut message = format!("error: {err}");
+            for cause in err.chain().skip(1) {
+                message.push_str(&format!("\n  caused by: {cause}"));
+            }
+            eprintln!("{message}");
+            ExitCode::from(1)
+        }
+    }
+}
+
+fn run(cli: cli::Cli) -> anyhow::Result<()> {
+    if let Some(threads) = cli.threads {
+        anyhow::ensure!(threads >= 1, "--threads must be at least 1");
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build_global()?;
+    }
+    let quiet = cli.quiet;
+    match cli.command {
+        cli::Command::Scan(args) => commands::scan(args, quiet),
+        cli::Command::Label(args) => commands::label(args, quiet),
+        cli::Command::Features(args) => commands::features(args),
+        cli::Command::Simulate(args) => commands::simulate(args, quiet),
+        cli::Command::Train(args) => commands::train(args, quiet),
+        cli::Command::Evaluate(args) => commands::evaluate(args, quiet),
+        cli::Command::ModelCard(args) => commands::model_card(args),
+        cli::Command::Demo(args) => commands::demo(args, quiet),
+    }
+}

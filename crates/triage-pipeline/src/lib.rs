@@ -1,2 +1,153 @@
-//! placeholder crate root, replaced by its owner.
+//! The one pipeline shared by labelling (`scan`, `label`) and training (`train`, `evaluate`).
+//!
+//! Data flow, in three stages so that the expensive middle one can be sharded and resumed:
+//!
+//! 1. [`embed_all`]: choose each variable's embedding (cheap, every shard repeats it);
+//! 2. [`cross_map_unit`]: one *work unit* per response manifold, producing the ensembles of every
+//!    pair whose response it is (the neighbour tables are built once per unit);
+//! 3. [`assemble`]: pair each ensemble with its reverse direction and the series context, and
+//!    compute the features. Judging ([`judge`]) then applies a model.
+//!
+//! Training feeds simulated systems through exactly the same three stages ([`training_set`]).
 #![deny(missing_docs)]
+
+mod assemble;
+mod quality;
+
+
+pub use assemble::{PairRecord, assemble, assemble_curves};
+pub use quality::{QualityThresholds, quality_flags};
+
+
+use crossmap_engine::{CrossMapParams, Embedding, EmbeddingSettings, PairEnsemble, ValidParams};
+
+/// Observed series by name, every column the same length; NaN marks a missing value.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SeriesSet {
+    /// Variable names.
+    pub names: Vec<String>,
+    /// `columns[j][i]`: variable j at time i.
+    pub columns: Vec<Vec<f64>>,
+}
+
+impl SeriesSet {
+    /// Number of time points.
+    pub fn len(&self) -> usize {
+        self.columns.first().map_or(0, Vec::len)
+    }
+
+    /// True when there are no time points.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+}
+
+/// Everything that fixes a run's numbers (apart from the model).
+#[derive(Debug, Clone, PartialEq)]
+pub struct AnalysisSettings {
+    /// Embedding choice.
+    pub embedding: EmbeddingSettings,
+    /// Cross-map parameters.
+    pub crossmap: CrossMapParams,
+    /// Thresholds of the data-quality review reasons.
+    pub quality: QualityThresholds,
+}
+
+/// Pipeline errors.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum PipelineError {
+    /// A variable could not be embedded.
+    #[error("variable `{variable}`: {source}")]
+    Embedding {
+        /// The variable.
+        variable: String,
+        /// Why.
+        #[source]
+        source: crossmap_engine::EngineError,
+    },
+    /// The cross-map parameters do not fit the data.
+    #[error("{0}")]
+    Params(#[source] crossmap_engine::EngineError),
+    /// Fewer than two variables.
+    #[error("need at least two series, found {0}")]
+    TooFewSeries(usize),
+}
+
+/// Stage 1: the embedding of every variable, in column order.
+pub fn embed_all(
+    series: &SeriesSet,
+    settings: &EmbeddingSettings,
+) -> Result<Vec<Embedding>, PipelineError> {
+    if series.names.len() < 2 {
+        return Err(PipelineError::TooFewSeries(series.names.len()));
+    }
+    series
+        .columns
+        .iter()
+        .zip(&series.names)
+        .map(|(column, name)| {
+            crossmap_engine::choose_embedding(column, settings).map_err(|source| {
+                PipelineError::Embedding {
+                    variable: name.clone(),
+                    source,
+                }
+            })
+        })
+        .collect()
+}
+
+/// Check the cross-map parameters against the data once, before any work.
+pub fn validate_params(
+    series: &SeriesSet,
+    embeddings: &[Embedding],
+    params: &CrossMapParams,
+) -> Result<ValidParams, PipelineError> {
+    params
+        .validate(series.len(), embeddings)
+        .map_err(PipelineError::Params)
+}
+
+/// Stage 2: the ensembles of every pair whose response is variable `response`.
+pub fn cross_map_unit(
+    series: &SeriesSet,
+    embeddings: &[Embedding],
+    response: usize,
+    params: &ValidParams,
+) -> Vec<PairEnsemble> {
+    crossmap_engine::cross_map_response(&series.columns, embeddings, response, params)
+}
+
+/// Stages 1-3 in one call, for a whole table in one process.
+pub fn analyse(
+    series: &SeriesSet,
+    settings: &AnalysisSettings,
+    progress: &(dyn Fn(usize) + Sync),
+) -> Result<Analysis, PipelineError> {
+    let embeddings = embed_all(series, &settings.embedding)?;
+    let params = validate_params(series, &embeddings, &settings.crossmap)?;
+    let done = std::sync::atomic::AtomicUsize::new(0);
+    let ensembles: Vec<PairEnsemble> = {
+        use rayon::prelude::*;
+        (0..series.names.len())
+            .into_par_iter()
+            .flat_map_iter(|response| {
+                let unit = cross_map_unit(series, &embeddings, response, &params);
+                let n = done.fetch_add(unit.len(), std::sync::atomic::Ordering::Relaxed) + unit.len();
+                progress(n);
+                unit
+            })
+            .collect()
+    };
+    let pairs = assemble(series, &embeddings, &ensembles, &settings.quality);
+    Ok(Analysis { embeddings, pairs })
+}
+
+/// The result of stages 1-3.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Analysis {
+    /// Embedding of each variable, in column order.
+    pub embeddings: Vec<Embedding>,
+    /// One record per ordered pair, ordered by (driver, response) column index.
+    pub pairs: Vec<PairRecord>,
+}

@@ -1,0 +1,196 @@
+//! Command-line flags: parsed here, checked into validated settings before any work.
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand};
+
+/// Triage convergent cross mapping evidence for every ordered pair of variables.
+///
+/// Every hypothesis is written DRIVER -> RESPONSE: "does DRIVER drive RESPONSE?". The evidence
+/// for it is how well DRIVER's values can be estimated from the delay embedding of RESPONSE.
+#[derive(Debug, Parser)]
+#[command(name = "ccm-triage", version, about, long_about = None, propagate_version = true)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+    /// Hide progress bars (they are also hidden when stderr is not a terminal).
+    #[arg(long, global = true)]
+    pub quiet: bool,
+    /// Worker threads (default: all cores). Results do not depend on it.
+    #[arg(long, global = true, value_name = "N")]
+    pub threads: Option<usize>,
+}
+
+/// Subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Label every ordered pair of series in a CSV table (the main job).
+    #[command(after_help = "Example:\n  ccm-triage scan lagoon.csv --out lagoon-run --seed 7")]
+    Scan(ScanArgs),
+    /// Label ensembles computed elsewhere, given as a curves.csv table.
+    #[command(after_help = "Example:\n  ccm-triage label curves.csv --out relabelled")]
+    Label(LabelArgs),
+    /// Compute curve-only features from a curves.csv table, without labelling.
+    #[command(after_help = "Example:\n  ccm-triage features curves.csv --out feats")]
+    Features(FeaturesArgs),
+    /// Simulate labelled coupled systems from a spec file.
+    #[command(after_help = "Example:\n  ccm-triage simulate training-sim/specs/lab-example.toml --out sims")]
+    Simulate(SimulateArgs),
+    /// Train and calibrate a model on simulated systems from a spec file.
+    #[command(after_help = "Example:\n  ccm-triage train training-sim/specs/default.toml --out my-model")]
+    Train(TrainArgs),
+    /// Measure a model on simulated systems it was not trained on.
+    #[command(after_help = "Example:\n  ccm-triage evaluate --model my-model/model.bin training-sim/specs/holdout.toml")]
+    Evaluate(EvaluateArgs),
+    /// Print a model file's card (training data, metrics, identity).
+    #[command(name = "model-card", after_help = "Example:\n  ccm-triage model-card my-model/model.bin")]
+    ModelCard(ModelCardArgs),
+    /// Run the bundled demo scenario and compare the verdicts with its answer key.
+    #[command(after_help = "Example:\n  ccm-triage demo --out demo-run")]
+    Demo(DemoArgs),
+}
+
+/// Options that fix the cross-map computation.
+#[derive(Debug, Clone, Args)]
+pub struct EngineArgs {
+    /// Master seed of the random libraries and surrogates.
+    #[arg(long, default_value_t = 1, value_name = "N")]
+    pub seed: u64,
+    /// Embedding dimension for every variable (default: chosen per variable by simplex projection).
+    #[arg(long, value_name = "E")]
+    pub dim: Option<usize>,
+    /// Largest embedding dimension tried when choosing it.
+    #[arg(long, default_value_t = 10, value_name = "E")]
+    pub max_dim: usize,
+    /// Embedding delay in time steps for every variable (default: chosen per variable).
+    #[arg(long, value_name = "TAU")]
+    pub delay: Option<usize>,
+    /// Library sizes: a count of log-spaced sizes (e.g. 12) or an explicit list (e.g. 20,40,80).
+    #[arg(long, default_value = "12", value_name = "COUNT|L1,L2,..")]
+    pub sizes: String,
+    /// Random libraries per library size.
+    #[arg(long, default_value_t = 100, value_name = "R")]
+    pub replicates: usize,
+    /// Theiler window: neighbours this close in time to the estimated point are excluded
+    /// (default: chosen from the embedding).
+    #[arg(long, value_name = "STEPS")]
+    pub theiler_window: Option<usize>,
+    /// Largest absolute cross-map lag of the lag profile (default: chosen from the embedding).
+    #[arg(long, value_name = "K")]
+    pub max_lag: Option<usize>,
+    /// Surrogate drivers per pair for the significance features.
+    #[arg(long, default_value_t = 39, value_name = "N")]
+    pub surrogates: usize,
+    /// Known seasonal period in time steps: surrogates keep the seasonal cycle.
+    #[arg(long, value_name = "STEPS")]
+    pub period: Option<usize>,
+}
+
+/// Options of the verdict.
+#[derive(Debug, Clone, Args)]
+pub struct VerdictArgs {
+    /// Model file (default: the model built into this binary).
+    #[arg(long, value_name = "PATH")]
+    pub model: Option<PathBuf>,
+    /// Probabilities inside LO,HI are sent to review.
+    #[arg(long, default_value = "0.25,0.75", value_name = "LO,HI")]
+    pub review_band: String,
+}
+
+/// `scan`.
+#[derive(Debug, Args)]
+pub struct ScanArgs {
+    /// Table of series: a header row, an optional time column, one column per series.
+    pub data: PathBuf,
+    /// Output directory (created; existing result files are replaced atomically).
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+    /// Name of the time column (default: a first column named `t` or `time`).
+    #[arg(long, value_name = "NAME")]
+    pub time_column: Option<String>,
+    #[command(flatten)]
+    pub engine: EngineArgs,
+    #[command(flatten)]
+    pub verdict: VerdictArgs,
+}
+
+/// `label`.
+#[derive(Debug, Args)]
+pub struct LabelArgs {
+    /// Ensembles in the curves.csv format: driver,response,library_size,replicate,skill.
+    pub curves: PathBuf,
+    /// Output directory.
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+    #[command(flatten)]
+    pub verdict: VerdictArgs,
+}
+
+/// `features`.
+#[derive(Debug, Args)]
+pub struct FeaturesArgs {
+    /// Ensembles in the curves.csv format.
+    pub curves: PathBuf,
+    /// Output directory.
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+}
+
+/// `simulate`.
+#[derive(Debug, Args)]
+pub struct SimulateArgs {
+    /// Simulator spec (TOML); see training-sim/SPEC.md.
+    pub spec: PathBuf,
+    /// Output directory.
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+}
+
+/// `train`.
+#[derive(Debug, Args)]
+pub struct TrainArgs {
+    /// Simulator spec (TOML) describing the training systems.
+    pub spec: PathBuf,
+    /// Output directory for model.bin and its card.
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+    #[command(flatten)]
+    pub engine: EngineArgs,
+}
+
+/// `evaluate`.
+#[derive(Debug, Args)]
+pub struct EvaluateArgs {
+    /// Model file (default: the model built into this binary).
+    #[arg(long, value_name = "PATH")]
+    pub model: Option<PathBuf>,
+    /// Simulator spec (TOML) describing held-out systems.
+    pub spec: PathBuf,
+    /// Also write the per-pair predictions and the metrics to this directory.
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+    #[command(flatten)]
+    pub engine: EngineArgs,
+    /// Probabilities inside LO,HI are sent to review.
+    #[arg(long, default_value = "0.25,0.75", value_name = "LO,HI")]
+    pub review_band: String,
+}
+
+/// `model-card`.
+#[derive(Debug, Args)]
+pub struct ModelCardArgs {
+    /// Model file (default: the model built into this binary).
+    pub model: Option<PathBuf>,
+    /// Print the card as JSON instead of Markdown.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// `demo`.
+#[derive(Debug, Args)]
+pub struct DemoArgs {
+    /// Output directory.
+    #[arg(long, default_value = "ccm-triage-demo", value_name = "DIR")]
+    pub out: PathBuf,
+}
