@@ -66,28 +66,28 @@ fn validate(data: &ReportData) -> Result<BTreeMap<(&str, &str), usize>, ReportEr
                 p.forward.len()
             )));
         }
-        if let Some(r) = &p.reverse {
-            if r.len() != p.library_sizes.len() {
-                return Err(mismatch(format!(
-                    "{} library sizes but {} rows of reverse skills; give one row per size",
-                    p.library_sizes.len(),
-                    r.len()
-                )));
-            }
+        if let Some(r) = &p.reverse
+            && r.len() != p.library_sizes.len()
+        {
+            return Err(mismatch(format!(
+                "{} library sizes but {} rows of reverse skills; give one row per size",
+                p.library_sizes.len(),
+                r.len()
+            )));
         }
         if p.library_sizes.contains(&0) {
             return Err(mismatch(
                 "a library size of 0 cannot be drawn; sizes must be positive".into(),
             ));
         }
-        if let Some((lags, skill)) = &p.lag_profile {
-            if lags.len() != skill.len() {
-                return Err(mismatch(format!(
-                    "lag profile has {} lags but {} skills",
-                    lags.len(),
-                    skill.len()
-                )));
-            }
+        if let Some((lags, skill)) = &p.lag_profile
+            && lags.len() != skill.len()
+        {
+            return Err(mismatch(format!(
+                "lag profile has {} lags but {} skills",
+                lags.len(),
+                skill.len()
+            )));
         }
     }
     Ok(cells)
@@ -103,7 +103,7 @@ fn fmt_value(v: Option<f64>) -> String {
     match v {
         None => "n/a".to_owned(),
         Some(x) if !x.is_finite() => "n/a".to_owned(),
-        Some(x) if x == 0.0 => "0".to_owned(),
+        Some(0.0) => "0".to_owned(),
         Some(x) if x.abs() >= 1e4 || x.abs() < 1e-3 => format!("{x:.2e}"),
         Some(x) => format!("{x:.3}"),
     }
@@ -234,8 +234,8 @@ fn summary(
         out,
         "<div class=\"matrix-wrap\">\n<table id=\"matrix\" class=\"matrix {size}\">\n\
          <caption>Each cell answers <em>does the row variable drive the column variable?</em> \
-         It shows the verdict mark and the probability that the row drives the column. \
-         Select a cell to see its evidence.</caption>\n<thead><tr>\
+         It shows the verdict mark and the probability that the row drives the column; \
+         the hatched diagonal is not tested. Select a cell to see its evidence.</caption>\n<thead><tr>\
          <th class=\"corner\" scope=\"col\"><span class=\"ax-d\">driver &darr;</span> \
          <span class=\"ax-r\">response &rarr;</span></th>"
     );
@@ -460,8 +460,8 @@ fn panel(out: &mut String, k: usize, p: &PairView, open: bool) -> Result<(), Rep
         put!(
             out,
             "<figure class=\"curve\">{svg}<figcaption><b>Does {} drive {}?</b> Skill of recovering {} \
-             from the delay embedding of {} as the library grows: <span class=\"sw fwd\"></span> median of {} \
-             replicates, shaded {:.0}&ndash;{:.0}% of replicates.",
+             from the delay embedding of {} as the library grows. <span class=\"sw fwd\"></span> median of {} \
+             replicates, shaded {:.0}&ndash;{:.0}%.",
             esc(&p.driver),
             esc(&p.response),
             esc(&p.driver),
@@ -473,7 +473,7 @@ fn panel(out: &mut String, k: usize, p: &PairView, open: bool) -> Result<(), Rep
         if p.reverse.is_some() {
             put!(
                 out,
-                " <span class=\"sw rev\"></span> the opposite hypothesis, {} drives {}.",
+                " <span class=\"sw rev\"></span> opposite hypothesis: {} drives {}.",
                 esc(&p.response),
                 esc(&p.driver)
             );
@@ -482,8 +482,8 @@ fn panel(out: &mut String, k: usize, p: &PairView, open: bool) -> Result<(), Rep
             let l_max = p.library_sizes.iter().max().copied().unwrap_or(0);
             put!(
                 out,
-                " <span class=\"sw sur\"></span> {} surrogate drivers at library size {}: \
-                 {:.0}&ndash;{:.0}% range and median.",
+                " <span class=\"sw sur\"></span> {} surrogate drivers at library size {}, \
+                 {:.0}&ndash;{:.0}% and median.",
                 s.len(),
                 l_max,
                 SURROGATE_BAND.0 * 100.0,
@@ -518,8 +518,6 @@ fn panel(out: &mut String, k: usize, p: &PairView, open: bool) -> Result<(), Rep
             out.push_str("</figcaption></figure>\n");
         }
     }
-    out.push_str("</div>\n");
-
     if !p.key_features.is_empty() {
         out.push_str("<table class=\"features\"><caption>Key features</caption><tbody>");
         for (name, v) in &p.key_features {
@@ -532,6 +530,7 @@ fn panel(out: &mut String, k: usize, p: &PairView, open: bool) -> Result<(), Rep
         }
         out.push_str("</tbody></table>\n");
     }
+    out.push_str("</div>\n");
     out.push_str("</div>\n</details>\n");
     Ok(())
 }

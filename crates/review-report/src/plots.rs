@@ -2,6 +2,7 @@
 
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use crate::ReportError;
 use crate::model::PairView;
@@ -52,12 +53,10 @@ fn y_bounds(values: impl Iterator<Item = f64>) -> (f64, f64) {
 }
 
 fn fmt_size(v: &f64) -> String {
-    if *v >= 1000.0 {
-        format!("{:.0}", v)
-    } else if *v >= 10.0 {
-        format!("{:.0}", v)
+    if *v >= 10.0 {
+        format!("{v:.0}")
     } else {
-        format!("{:.1}", v)
+        format!("{v:.1}")
     }
 }
 
@@ -186,6 +185,18 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
                 .draw_series(std::iter::once(PathElement::new(
                     vec![(a, s_mid), (b, s_mid)],
                     SURROGATE.stroke_width(2),
+                )))
+                .map_err(plot_err(FIG))?;
+            // A word beside the bar, because a lone grey box is easy to misread.
+            let label = ("sans-serif", LABEL_PX * 1.24)
+                .into_font()
+                .color(&SURROGATE)
+                .pos(Pos::new(HPos::Right, VPos::Center));
+            chart
+                .draw_series(std::iter::once(Text::new(
+                    "surrogates",
+                    (x_max / 1.1, (s_lo + s_hi) / 2.0),
+                    label,
                 )))
                 .map_err(plot_err(FIG))?;
         }

@@ -11,6 +11,7 @@
 //!   error/assert/warning, `Log.entryAdded` at level error or warning (this is where
 //!   failed resource loads and blocked requests are reported), and any `CONSOLE`
 //!   line in Chromium's stderr log (`--enable-logging=stderr --v=0`).
+//!
 //! A second test loads a deliberately broken page to show that each detector fires.
 //!
 //! The tests skip with a printed reason when Chromium is absent, and fail instead
@@ -95,10 +96,10 @@ impl Browser {
                 buf.extend_from_slice(&chunk[..n]);
                 while let Some(end) = buf.iter().position(|&b| b == 0) {
                     let msg: Vec<u8> = buf.drain(..=end).collect();
-                    if let Ok(v) = serde_json::from_slice::<Value>(&msg[..msg.len() - 1]) {
-                        if tx.send(v).is_err() {
-                            return;
-                        }
+                    if let Ok(v) = serde_json::from_slice::<Value>(&msg[..msg.len() - 1])
+                        && tx.send(v).is_err()
+                    {
+                        return;
                     }
                 }
             }
@@ -287,7 +288,6 @@ fn report_renders_in_chromium_without_console_errors() {
         std::fs::write(&path, review_report::render_html(&data).unwrap()).unwrap();
         let session = browser.open(&file_url(&path));
         let facts = browser.eval(&session, PAGE_FACTS);
-        eprintln!("{name}: {facts}");
         let n = data.variables.len() as u64;
         assert_eq!(facts["cells"], json!(n * n), "{name}: {facts}");
         assert_eq!(facts["rows"], json!(n), "{name}: {facts}");

@@ -110,7 +110,7 @@ fn forty_variables_scale_down_and_cap_the_plots() {
         );
     }
     let mb = html.len() as f64 / 1e6;
-    assert!(mb < 6.0, "page weighs {mb:.1} MB");
+    assert!(mb < 4.5, "page weighs {mb:.1} MB");
 }
 
 #[test]
