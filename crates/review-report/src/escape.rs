@@ -27,9 +27,9 @@ pub(crate) fn esc_into(out: &mut String, s: &str) {
     }
 }
 
-/// A stable, URL-safe anchor id for a pair, independent of the names' characters.
-pub(crate) fn pair_anchor(index: usize) -> String {
-    format!("pair-{index}")
+/// A URL-safe anchor id for the pair at a display position, whatever characters its names hold.
+pub(crate) fn pair_anchor(position: usize) -> String {
+    format!("pair-{position}")
 }
 
 #[cfg(test)]

@@ -132,6 +132,11 @@ fn question(out: &mut String, p: &PairView) {
 pub(crate) fn render(data: &ReportData, opts: &RenderOptions) -> Result<String, ReportError> {
     let cells = validate(data)?;
     let order = display_order(&data.pairs);
+    // Anchors follow the display position, so the page does not depend on input order.
+    let mut rank = vec![0; order.len()];
+    for (pos, &k) in order.iter().enumerate() {
+        rank[k] = pos;
+    }
     let mut out = String::with_capacity(64 * 1024);
 
     put!(
@@ -148,8 +153,8 @@ pub(crate) fn render(data: &ReportData, opts: &RenderOptions) -> Result<String, 
         "<aside id=\"caution\" class=\"caution\" role=\"note\"><strong>Read this first.</strong> {}</aside>\n",
         esc(CAUTION)
     );
-    summary(&mut out, data, &cells, &order);
-    panels(&mut out, data, &order, opts)?;
+    summary(&mut out, data, &cells, &order, &rank);
+    panels(&mut out, data, &order, &rank, opts)?;
     out.push_str("</body>\n</html>\n");
     Ok(out)
 }
@@ -193,6 +198,7 @@ fn summary(
     data: &ReportData,
     cells: &BTreeMap<(&str, &str), usize>,
     order: &[usize],
+    rank: &[usize],
 ) {
     let n = data.variables.len();
     out.push_str("<section id=\"summary\">\n<h2>At a glance</h2>\n<p class=\"counts\">");
@@ -216,7 +222,7 @@ fn summary(
             put!(
                 out,
                 "<p class=\"start\">Start with <a href=\"#{}\">",
-                pair_anchor(first)
+                pair_anchor(rank[first])
             );
             question(out, p);
             out.push_str("</a>: the least settled of the pairs marked for review.</p>\n");
@@ -279,7 +285,7 @@ fn summary(
                         esc(r),
                         fmt_p(p.p_causal),
                         p.verdict.as_str(),
-                        pair_anchor(k),
+                        pair_anchor(rank[k]),
                         p.verdict.glyph(),
                         fmt_p(p.p_causal).trim_start_matches('0')
                     );
@@ -356,6 +362,7 @@ fn panels(
     out: &mut String,
     data: &ReportData,
     order: &[usize],
+    rank: &[usize],
     opts: &RenderOptions,
 ) -> Result<(), ReportError> {
     let (full, rest) = order.split_at(order.len().min(opts.max_panels));
@@ -395,7 +402,7 @@ fn panels(
         }
         put!(out, "<p class=\"lead\">{lead}</p>\n");
         for k in members {
-            panel(out, k, &data.pairs[k], v == VerdictKind::Review)?;
+            panel(out, rank[k], &data.pairs[k], v == VerdictKind::Review)?;
         }
         let shown_elsewhere = rest.iter().filter(|&&k| data.pairs[k].verdict == v).count();
         if shown_elsewhere > 0 {
@@ -407,17 +414,17 @@ fn panels(
         out.push_str("</section>\n");
     }
     if !rest.is_empty() {
-        compact_table(out, data, rest, opts.max_panels);
+        compact_table(out, data, rest, rank, opts.max_panels);
     }
     Ok(())
 }
 
-fn panel(out: &mut String, k: usize, p: &PairView, open: bool) -> Result<(), ReportError> {
+fn panel(out: &mut String, anchor: usize, p: &PairView, open: bool) -> Result<(), ReportError> {
     put!(
         out,
         "<details class=\"pair v-{}\" id=\"{}\"{}>\n<summary>",
         p.verdict.css(),
-        pair_anchor(k),
+        pair_anchor(anchor),
         if open { " open" } else { "" }
     );
     badge(out, p.verdict);
@@ -540,7 +547,7 @@ fn final_median(rows: &[Vec<f64>]) -> Option<f64> {
     rows.last().and_then(|r| quantile(r, 0.5))
 }
 
-fn compact_table(out: &mut String, data: &ReportData, rest: &[usize], cap: usize) {
+fn compact_table(out: &mut String, data: &ReportData, rest: &[usize], rank: &[usize], cap: usize) {
     put!(
         out,
         "<section id=\"compact\" class=\"group\">\n<h2>Further pairs, in brief <span class=\"n\">({})</span></h2>\n\
@@ -553,7 +560,7 @@ fn compact_table(out: &mut String, data: &ReportData, rest: &[usize], cap: usize
     );
     for &k in rest {
         let p = &data.pairs[k];
-        put!(out, "<tr id=\"{}\"><td>", pair_anchor(k));
+        put!(out, "<tr id=\"{}\"><td>", pair_anchor(rank[k]));
         badge(out, p.verdict);
         out.push_str("</td><td>");
         question(out, p);

@@ -128,11 +128,14 @@ fn same_data_gives_the_same_bytes() {
     let a = render_html(&common::wide(12)).unwrap();
     let b = render_html(&common::wide(12)).unwrap();
     assert_eq!(a, b);
-    // Input order of pairs does not change the page apart from anchors.
+    // The order pairs arrive in does not change the page.
     let mut shuffled = common::small();
     shuffled.pairs.reverse();
-    let h = render_html(&shuffled).unwrap();
-    assert_eq!(count(&h, "data-cell=\""), 36);
+    shuffled.pairs.swap(0, 7);
+    assert_eq!(
+        render_html(&shuffled).unwrap(),
+        render_html(&common::small()).unwrap()
+    );
 }
 
 #[test]
