@@ -1,2 +1,89 @@
-//! placeholder crate root, replaced by its owner.
+//! A self-contained HTML review report for ccm-triage runs.
+//!
+//! The report is one file: inline CSS and inline SVG figures drawn with plotters'
+//! SVG backend, no scripts, no fonts or images fetched from anywhere, so it opens
+//! offline in any browser. It renders from a plain view model ([`ReportData`]) so it
+//! can be built and tested without the rest of the pipeline.
+//!
+//! The page starts with the caution paragraph and a summary (a verdict matrix with
+//! drivers as rows and responses as columns, the embedding table, run parameters,
+//! model identity), then one panel per pair: review cases first, then causal, then
+//! non-causal. Every caption asks the question in driver → response terms.
+//!
+//! ```
+//! use review_report::{render_html, PairView, ReportData, VerdictKind, CAUTION};
+//!
+//! let pair = PairView {
+//!     driver: "rain".into(),
+//!     response: "flow".into(),
+//!     p_causal: 0.91,
+//!     verdict: VerdictKind::Causal,
+//!     reasons: vec![],
+//!     library_sizes: vec![20, 40, 80],
+//!     forward: vec![vec![0.20, 0.25], vec![0.40, 0.45], vec![0.60, 0.62]],
+//!     reverse: None,
+//!     lag_profile: None,
+//!     surrogate_skills: Some(vec![0.01, 0.05, -0.02]),
+//!     key_features: vec![("skill gain".into(), Some(0.4))],
+//! };
+//! let data = ReportData {
+//!     title: "ccm-triage report — example.csv".into(),
+//!     input_name: "example.csv".into(),
+//!     input_sha256: None,
+//!     tool_version: "0.1.0".into(),
+//!     model_identity: "none".into(),
+//!     params: vec![("seed".into(), "7".into())],
+//!     variables: vec!["rain".into(), "flow".into()],
+//!     embeddings: vec![],
+//!     pairs: vec![pair],
+//!     notes: vec![],
+//! };
+//! let html = render_html(&data)?;
+//! assert!(html.contains("Does <b>rain</b> drive <b>flow</b>?"));
+//! assert!(html.contains(CAUTION));
+//! # Ok::<(), review_report::ReportError>(())
+//! ```
 #![deny(missing_docs)]
+
+mod error;
+mod escape;
+mod html;
+mod model;
+mod order;
+mod plots;
+mod stats;
+
+pub use error::ReportError;
+pub use model::{EmbeddingRow, PairView, ReportData, VerdictKind};
+
+/// The caution shown prominently at the top of every report (and reusable elsewhere).
+pub const CAUTION: &str = "Each label is evidence from one method, convergent cross mapping, and holds only as far as \
+its assumptions do: that the system is deterministic enough to be reconstructed from delay embeddings, that the \
+series are long and clean enough, and that no shared driver or shared seasonality is imitating a link. A label is \
+not proof of cause. Treat causal and review verdicts as leads to check against domain knowledge and, where \
+possible, experiments or interventions before acting on them.";
+
+/// Options that shape the page but not its content.
+#[derive(Debug, Clone, PartialEq, Eq)]
+#[non_exhaustive]
+pub struct RenderOptions {
+    /// Pairs beyond this many (in display order) get a row in a compact table instead of plots.
+    pub max_panels: usize,
+}
+
+impl Default for RenderOptions {
+    fn default() -> Self {
+        // Two figures per pair cost roughly 10 kB of SVG; 200 pairs keep the page light enough to open quickly.
+        Self { max_panels: 200 }
+    }
+}
+
+/// Renders the report with default options. Same data, same bytes.
+pub fn render_html(data: &ReportData) -> Result<String, ReportError> {
+    render_html_with(data, &RenderOptions::default())
+}
+
+/// Renders the report with the given options. Same data and options, same bytes.
+pub fn render_html_with(data: &ReportData, options: &RenderOptions) -> Result<String, ReportError> {
+    html::render(data, options)
+}

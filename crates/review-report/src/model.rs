@@ -1,0 +1,108 @@
+//! The plain view model the report is rendered from.
+
+/// Everything one report shows; filled by an adapter from a run's results.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReportData {
+    /// Page title, e.g. `"ccm-triage report — lagoon.csv"`.
+    pub title: String,
+    /// File name of the series table (or curves table) the run read.
+    pub input_name: String,
+    /// SHA-256 of the input file, hex, when known.
+    pub input_sha256: Option<String>,
+    /// Version of the tool that produced the run.
+    pub tool_version: String,
+    /// Which classifier labelled the pairs, e.g. `"default model v1 (sha256 ab12…)"`, or `"none"`.
+    pub model_identity: String,
+    /// Run parameters as (name, value), shown in a table in this order.
+    pub params: Vec<(String, String)>,
+    /// Matrix axes in input order; every pair's driver and response must be listed here.
+    pub variables: Vec<String>,
+    /// Chosen embedding per variable; empty when the ensembles came from elsewhere.
+    pub embeddings: Vec<EmbeddingRow>,
+    /// One entry per ordered pair that was assessed, in any order.
+    pub pairs: Vec<PairView>,
+    /// Run-level notes in plain words (missing cells, skipped pairs, ...).
+    pub notes: Vec<String>,
+}
+
+/// The embedding chosen for one variable.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EmbeddingRow {
+    /// Variable name.
+    pub variable: String,
+    /// Embedding dimension.
+    pub e: usize,
+    /// Delay between embedding coordinates, in time steps.
+    pub tau: usize,
+    /// Simplex projection forecast skill at the chosen `e` and `tau`.
+    pub simplex_skill: f64,
+}
+
+/// The label a pair received.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub enum VerdictKind {
+    /// The evidence looks like the driver drives the response.
+    Causal,
+    /// The evidence does not look like driving.
+    NonCausal,
+    /// The evidence is ambiguous or unusual; a person should look.
+    Review,
+}
+
+impl VerdictKind {
+    /// The word used for this verdict in `labels.csv` and in the report.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            VerdictKind::Causal => "causal",
+            VerdictKind::NonCausal => "non-causal",
+            VerdictKind::Review => "review",
+        }
+    }
+
+    /// A glyph that tells the verdicts apart without relying on colour.
+    pub fn glyph(self) -> &'static str {
+        match self {
+            VerdictKind::Causal => "\u{25B2}",    // ▲
+            VerdictKind::NonCausal => "\u{25CB}", // ○
+            VerdictKind::Review => "?",
+        }
+    }
+
+    /// CSS class suffix for this verdict.
+    pub(crate) fn css(self) -> &'static str {
+        match self {
+            VerdictKind::Causal => "yes",
+            VerdictKind::NonCausal => "no",
+            VerdictKind::Review => "rev",
+        }
+    }
+}
+
+/// Everything shown for one ordered pair (does `driver` drive `response`?).
+#[derive(Debug, Clone, PartialEq)]
+pub struct PairView {
+    /// The hypothesised driver.
+    pub driver: String,
+    /// The hypothesised response.
+    pub response: String,
+    /// Calibrated probability that the driver drives the response, in [0, 1].
+    pub p_causal: f64,
+    /// The label given to the pair.
+    pub verdict: VerdictKind,
+    /// Why the pair was flagged, as (short code, explanation in plain words).
+    pub reasons: Vec<(String, String)>,
+    /// Library sizes, ascending, one per row of `forward`.
+    pub library_sizes: Vec<usize>,
+    /// `[size][replicate]` skill of recovering the driver from the response's
+    /// delay embedding (the evidence for driver → response). Non-finite values are skipped.
+    pub forward: Vec<Vec<f64>>,
+    /// The opposite hypothesis (response → driver) at the same sizes, when computed.
+    pub reverse: Option<Vec<Vec<f64>>>,
+    /// (lags, skill): skill of recovering the driver at time t + lag from the
+    /// response's embedding at time t, so a driver's lasting footprint shows at lag <= 0.
+    pub lag_profile: Option<(Vec<i32>, Vec<f64>)>,
+    /// Skills of surrogate drivers at the largest library size.
+    pub surrogate_skills: Option<Vec<f64>>,
+    /// Feature values worth showing, as (name, value); `None` when undefined.
+    pub key_features: Vec<(String, Option<f64>)>,
+}

@@ -1,0 +1,350 @@
+//! Opens rendered reports in headless Chromium and inspects the live page.
+//!
+//! Method: Chromium is started with `--remote-debugging-pipe`, which speaks the
+//! DevTools protocol as NUL-terminated JSON on file descriptors 3 (in) and 4 (out);
+//! a `sh -c exec` wrapper maps those onto the child's stdin and stdout. The test
+//! enables the `Runtime`, `Log` and `Page` domains, loads the report from a
+//! `file://` URL, waits for the load event, then:
+//! - evaluates DOM queries in the page (matrix cells, a laid-out curve plot inside
+//!   a pair panel, the caution text, resource loads);
+//! - counts problems: `Runtime.exceptionThrown`, `Runtime.consoleAPICalled` of type
+//!   error/assert/warning, `Log.entryAdded` at level error or warning (this is where
+//!   failed resource loads and blocked requests are reported), and any `CONSOLE`
+//!   line in Chromium's stderr log (`--enable-logging=stderr --v=0`).
+//!
+//! A second test loads a deliberately broken page to show that each detector fires.
+//!
+//! The tests skip with a printed reason when Chromium is absent, and fail instead
+//! when `CI=true`, so CI cannot pass by skipping.
+
+mod common;
+
+use std::io::{BufRead, BufReader, Read, Write};
+use std::path::{Path, PathBuf};
+use std::process::{Child, ChildStdin, Command, Stdio};
+use std::sync::mpsc::{Receiver, channel};
+use std::sync::{Arc, Mutex};
+use std::time::{Duration, Instant};
+
+use serde_json::{Value, json};
+
+const TIMEOUT: Duration = Duration::from_secs(60);
+
+/// Finds Chromium, or explains why the test cannot run.
+fn chromium() -> Option<PathBuf> {
+    let candidates = ["/usr/bin/chromium", "/usr/bin/chromium-browser"];
+    if let Some(p) = candidates.iter().map(PathBuf::from).find(|p| p.exists()) {
+        return Some(p);
+    }
+    let reason = "headless Chromium not found at /usr/bin/chromium (Debian package `chromium`)";
+    if std::env::var("CI").as_deref() == Ok("true") {
+        panic!("CI=true and {reason}; the CI script must install it");
+    }
+    eprintln!("SKIPPED browser test: {reason}");
+    None
+}
+
+struct Browser {
+    child: Child,
+    stdin: ChildStdin,
+    rx: Receiver<Value>,
+    next_id: u64,
+    events: Vec<Value>,
+    stderr_lines: Arc<Mutex<Vec<String>>>,
+    _profile: tempfile::TempDir,
+}
+
+impl Browser {
+    fn launch(exe: &Path) -> Browser {
+        let profile = tempfile::tempdir().unwrap();
+        let mut child = Command::new("sh")
+            .arg("-c")
+            .arg(r#"exec "$0" "$@" 3<&0 4>&1 0</dev/null 1>/dev/null"#)
+            .arg(exe)
+            .args([
+                "--headless",
+                "--no-sandbox",
+                "--disable-gpu",
+                "--disable-quic",
+                "--no-first-run",
+                "--disable-background-networking",
+                "--disable-component-update",
+                "--disable-sync",
+                "--remote-debugging-pipe",
+                "--enable-logging=stderr",
+                "--v=0",
+                "--window-size=1400,2000",
+            ])
+            .arg(format!("--user-data-dir={}", profile.path().display()))
+            .arg("about:blank")
+            .stdin(Stdio::piped())
+            .stdout(Stdio::piped())
+            .stderr(Stdio::piped())
+            .spawn()
+            .expect("start chromium");
+        let stdin = child.stdin.take().unwrap();
+        let mut stdout = child.stdout.take().unwrap();
+        let stderr = child.stderr.take().unwrap();
+        let (tx, rx) = channel();
+        std::thread::spawn(move || {
+            let mut buf = Vec::new();
+            let mut chunk = [0u8; 64 * 1024];
+            while let Ok(n) = stdout.read(&mut chunk) {
+                if n == 0 {
+                    break;
+                }
+                buf.extend_from_slice(&chunk[..n]);
+                while let Some(end) = buf.iter().position(|&b| b == 0) {
+                    let msg: Vec<u8> = buf.drain(..=end).collect();
+                    if let Ok(v) = serde_json::from_slice::<Value>(&msg[..msg.len() - 1])
+                        && tx.send(v).is_err()
+                    {
+                        return;
+                    }
+                }
+            }
+        });
+        let stderr_lines = Arc::new(Mutex::new(Vec::new()));
+        let sink = Arc::clone(&stderr_lines);
+        std::thread::spawn(move || {
+            for line in BufReader::new(stderr).lines().map_while(Result::ok) {
+                sink.lock().unwrap().push(line);
+            }
+        });
+        Browser {
+            child,
+            stdin,
+            rx,
+            next_id: 0,
+            events: Vec::new(),
+            stderr_lines,
+            _profile: profile,
+        }
+    }
+
+    fn call(&mut self, session: Option<&str>, method: &str, params: Value) -> Value {
+        self.next_id += 1;
+        let id = self.next_id;
+        let mut msg = json!({"id": id, "method": method, "params": params});
+        if let Some(s) = session {
+            msg["sessionId"] = json!(s);
+        }
+        let mut bytes = serde_json::to_vec(&msg).unwrap();
+        bytes.push(0);
+        self.stdin.write_all(&bytes).unwrap();
+        self.stdin.flush().unwrap();
+        let deadline = Instant::now() + TIMEOUT;
+        loop {
+            let left = deadline.saturating_duration_since(Instant::now());
+            let v = self
+                .rx
+                .recv_timeout(left)
+                .unwrap_or_else(|_| panic!("no answer to {method} within {TIMEOUT:?}"));
+            if v.get("id").and_then(Value::as_u64) == Some(id) {
+                if let Some(err) = v.get("error") {
+                    panic!("{method} failed: {err}");
+                }
+                return v["result"].clone();
+            }
+            self.events.push(v);
+        }
+    }
+
+    fn wait_event(&mut self, session: &str, method: &str) {
+        let is_it = |v: &Value| v["method"] == method && v["sessionId"] == session;
+        if self.events.iter().any(is_it) {
+            return;
+        }
+        let deadline = Instant::now() + TIMEOUT;
+        loop {
+            let left = deadline.saturating_duration_since(Instant::now());
+            let v = self
+                .rx
+                .recv_timeout(left)
+                .unwrap_or_else(|_| panic!("no {method} event within {TIMEOUT:?}"));
+            let hit = is_it(&v);
+            self.events.push(v);
+            if hit {
+                return;
+            }
+        }
+    }
+
+    /// Opens `url` in a fresh tab; returns the session id once the page has loaded.
+    fn open(&mut self, url: &str) -> String {
+        let target = self.call(None, "Target.createTarget", json!({"url": "about:blank"}));
+        let target_id = target["targetId"].as_str().unwrap().to_owned();
+        let attached = self.call(
+            None,
+            "Target.attachToTarget",
+            json!({"targetId": target_id, "flatten": true}),
+        );
+        let session = attached["sessionId"].as_str().unwrap().to_owned();
+        for domain in ["Runtime.enable", "Log.enable", "Page.enable"] {
+            self.call(Some(&session), domain, json!({}));
+        }
+        self.call(Some(&session), "Page.navigate", json!({"url": url}));
+        self.wait_event(&session, "Page.loadEventFired");
+        session
+    }
+
+    fn eval(&mut self, session: &str, expression: &str) -> Value {
+        let r = self.call(
+            Some(session),
+            "Runtime.evaluate",
+            json!({"expression": expression, "returnByValue": true}),
+        );
+        assert!(r.get("exceptionDetails").is_none(), "evaluation threw: {r}");
+        r["result"]["value"].clone()
+    }
+
+    /// Problems the page reported, in words.
+    fn problems(&mut self, session: &str) -> Vec<String> {
+        // A round trip after load lets late messages arrive before counting.
+        self.eval(session, "1");
+        let mut out = Vec::new();
+        for e in self.events.iter().filter(|e| e["sessionId"] == session) {
+            let p = &e["params"];
+            match e["method"].as_str().unwrap_or("") {
+                "Runtime.exceptionThrown" => {
+                    out.push(format!("exception: {}", p["exceptionDetails"]))
+                }
+                "Runtime.consoleAPICalled"
+                    if matches!(p["type"].as_str(), Some("error" | "assert" | "warning")) =>
+                {
+                    out.push(format!("console {}: {}", p["type"], p["args"]))
+                }
+                "Log.entryAdded"
+                    if matches!(p["entry"]["level"].as_str(), Some("error" | "warning")) =>
+                {
+                    out.push(format!(
+                        "log {}: {}",
+                        p["entry"]["level"], p["entry"]["text"]
+                    ))
+                }
+                _ => {}
+            }
+        }
+        out
+    }
+
+    fn stderr_console_lines(&self) -> Vec<String> {
+        self.stderr_lines
+            .lock()
+            .unwrap()
+            .iter()
+            .filter(|l| l.contains(":CONSOLE") || l.contains("Uncaught"))
+            .cloned()
+            .collect()
+    }
+
+    fn close(mut self) {
+        let _ = self.call(None, "Browser.close", json!({}));
+        let deadline = Instant::now() + Duration::from_secs(10);
+        while Instant::now() < deadline {
+            if let Ok(Some(_)) = self.child.try_wait() {
+                return;
+            }
+            std::thread::sleep(Duration::from_millis(50));
+        }
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
+}
+
+fn file_url(p: &Path) -> String {
+    format!("file://{}", p.display())
+}
+
+const PAGE_FACTS: &str = r#"(() => {
+  const m = document.getElementById('matrix');
+  const svg = document.querySelector('details.pair[open] figure.curve svg');
+  const box = svg ? svg.getBoundingClientRect() : {width: 0, height: 0};
+  const caution = document.getElementById('caution');
+  return {
+    cells: m ? m.querySelectorAll('td.cell').length : -1,
+    rows: m ? m.tBodies[0].rows.length : -1,
+    curve_svgs: document.querySelectorAll('details.pair figure.curve svg').length,
+    curve_texts: svg ? svg.querySelectorAll('text').length : 0,
+    curve_width: box.width, curve_height: box.height,
+    caution: caution ? caution.textContent : '',
+    caution_height: caution ? caution.getBoundingClientRect().height : 0,
+    first_group: document.querySelector('section.group').id,
+    resources: performance.getEntriesByType('resource').length,
+    scripts: document.scripts.length,
+  };
+})()"#;
+
+#[test]
+fn report_renders_in_chromium_without_console_errors() {
+    let Some(exe) = chromium() else { return };
+    let dir = tempfile::tempdir().unwrap();
+    let mut browser = Browser::launch(&exe);
+    for (name, data) in [
+        ("small.html", common::small()),
+        ("wide.html", common::wide(40)),
+    ] {
+        let path = dir.path().join(name);
+        std::fs::write(&path, review_report::render_html(&data).unwrap()).unwrap();
+        let session = browser.open(&file_url(&path));
+        let facts = browser.eval(&session, PAGE_FACTS);
+        let n = data.variables.len() as u64;
+        assert_eq!(facts["cells"], json!(n * n), "{name}: {facts}");
+        assert_eq!(facts["rows"], json!(n), "{name}: {facts}");
+        assert!(facts["curve_svgs"].as_u64().unwrap() > 0, "{name}: {facts}");
+        assert!(
+            facts["curve_texts"].as_u64().unwrap() >= 5,
+            "{name}: axis text missing: {facts}"
+        );
+        // The open review panel's plot must be laid out at a readable size.
+        assert!(
+            facts["curve_width"].as_f64().unwrap() > 300.0,
+            "{name}: {facts}"
+        );
+        assert!(
+            facts["caution"]
+                .as_str()
+                .unwrap()
+                .contains(review_report::CAUTION)
+        );
+        assert!(facts["caution_height"].as_f64().unwrap() > 20.0);
+        assert_eq!(facts["first_group"], "group-rev");
+        // Self-contained: nothing fetched, nothing run.
+        assert_eq!(facts["resources"], json!(0), "{name}: {facts}");
+        assert_eq!(facts["scripts"], json!(0));
+        let problems = browser.problems(&session);
+        assert!(problems.is_empty(), "{name}: page reported {problems:#?}");
+    }
+    let console = browser.stderr_console_lines();
+    browser.close();
+    assert!(console.is_empty(), "console lines in stderr: {console:#?}");
+}
+
+#[test]
+fn error_detection_catches_a_broken_page() {
+    let Some(exe) = chromium() else { return };
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("broken.html");
+    std::fs::write(
+        &path,
+        "<!DOCTYPE html><html><body><img src=\"missing.png\">\
+         <script>console.error('planted'); notDefined();</script></body></html>",
+    )
+    .unwrap();
+    let mut browser = Browser::launch(&exe);
+    let session = browser.open(&file_url(&path));
+    let problems = browser.problems(&session);
+    let console = browser.stderr_console_lines();
+    browser.close();
+    let has = |s: &str| problems.iter().any(|p| p.contains(s));
+    assert!(has("exception"), "{problems:#?}");
+    assert!(has("planted"), "{problems:#?}");
+    assert!(
+        has("missing.png") || has("ERR_FILE_NOT_FOUND"),
+        "{problems:#?}"
+    );
+    assert!(
+        console.iter().any(|l| l.contains("planted")),
+        "{console:#?}"
+    );
+}

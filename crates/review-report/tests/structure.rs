@@ -1,0 +1,193 @@
+//! Structural checks of the rendered page that need no browser.
+
+mod common;
+
+use review_report::{
+    CAUTION, RenderOptions, ReportError, VerdictKind, render_html, render_html_with,
+};
+
+fn count(hay: &str, needle: &str) -> usize {
+    hay.matches(needle).count()
+}
+
+#[test]
+fn matrix_has_one_cell_per_ordered_pair_of_variables() {
+    let data = common::small();
+    let html = render_html(&data).unwrap();
+    let n = data.variables.len();
+    assert_eq!(count(&html, "data-cell=\""), n * n);
+    assert_eq!(count(&html, "class=\"cell diag\""), n);
+    // One pair was left out on purpose and must show as not assessed, not vanish.
+    assert_eq!(count(&html, "class=\"cell none\""), 1);
+    assert!(html.contains("driver &darr;") && html.contains("response &rarr;"));
+    assert_eq!(count(&html, "<table id=\"matrix\""), 1);
+}
+
+#[test]
+fn caution_is_present_and_before_the_matrix() {
+    let html = render_html(&common::small()).unwrap();
+    let caution = html.find("id=\"caution\"").expect("caution present");
+    let matrix = html.find("id=\"matrix\"").unwrap();
+    assert!(caution < matrix);
+    assert!(html.contains(CAUTION));
+}
+
+#[test]
+fn review_cases_come_before_causal_before_non_causal() {
+    let data = common::small();
+    let html = render_html(&data).unwrap();
+    let panel_pos = |css: &str| -> Vec<usize> {
+        html.match_indices(&format!("<details class=\"pair v-{css}\""))
+            .map(|(i, _)| i)
+            .collect()
+    };
+    let (rev, yes, no) = (panel_pos("rev"), panel_pos("yes"), panel_pos("no"));
+    let want = |v| data.pairs.iter().filter(|p| p.verdict == v).count();
+    assert_eq!(rev.len(), want(VerdictKind::Review));
+    assert_eq!(yes.len(), want(VerdictKind::Causal));
+    assert_eq!(no.len(), want(VerdictKind::NonCausal));
+    assert!(!rev.is_empty() && !yes.is_empty() && !no.is_empty());
+    assert!(rev.last() < yes.first());
+    assert!(yes.last() < no.first());
+    // Review panels start open; the others start collapsed.
+    assert_eq!(count(&html, " open>"), rev.len());
+}
+
+#[test]
+fn every_curve_panel_has_an_svg_figure_with_text() {
+    let data = common::small();
+    let html = render_html(&data).unwrap();
+    // Two figures per pair: skill against library size, and the lag profile.
+    assert_eq!(count(&html, "<svg"), 2 * data.pairs.len());
+    assert!(count(&html, "<text") > 10 * data.pairs.len());
+    assert!(!html.contains("<script"));
+    assert!(
+        !html.contains("http://")
+            || !html
+                .replace("http://www.w3.org/2000/svg", "")
+                .contains("http://")
+    );
+    assert!(!html.contains("https://"));
+}
+
+#[test]
+fn captions_speak_in_driver_response_terms() {
+    let html = render_html(&common::small()).unwrap();
+    assert!(html.contains("Does <b>temperature</b> drive <b>nitrate &lt;NO3&gt;</b>?"));
+    let lower = html.to_lowercase();
+    for banned in ["xmap", " maps ", "cross-maps", "cross maps "] {
+        assert!(!lower.contains(banned), "found {banned:?}");
+    }
+}
+
+#[test]
+fn user_strings_are_escaped() {
+    let html = render_html(&common::small()).unwrap();
+    for raw in ["<NO3>", "<sample>", "\"zoo\"", "predator's"] {
+        assert!(!html.contains(raw), "unescaped {raw}");
+    }
+    assert!(html.contains("nitrate &lt;NO3&gt;"));
+    assert!(html.contains("algae &amp; diatoms"));
+    assert!(html.contains("grazers &quot;zoo&quot;"));
+    assert!(html.contains("predator&#39;s count"));
+}
+
+#[test]
+fn forty_variables_scale_down_and_cap_the_plots() {
+    let data = common::wide(40);
+    let html = render_html(&data).unwrap();
+    assert_eq!(count(&html, "data-cell=\""), 1600);
+    assert!(html.contains("class=\"matrix m-s\""));
+    let cap = RenderOptions::default().max_panels;
+    assert_eq!(count(&html, "<details class=\"pair"), cap);
+    assert!(html.contains("id=\"compact-table\""));
+    assert_eq!(count(&html, "<tr id=\"pair-"), data.pairs.len() - cap);
+    // Every pair stays reachable from the matrix.
+    for k in 0..data.pairs.len() {
+        assert!(
+            html.contains(&format!("id=\"pair-{k}\"")),
+            "no anchor for pair {k}"
+        );
+    }
+    let mb = html.len() as f64 / 1e6;
+    assert!(mb < 4.5, "page weighs {mb:.1} MB");
+}
+
+#[test]
+fn smaller_cap_moves_pairs_to_the_compact_table() {
+    let data = common::small();
+    let mut opts = RenderOptions::default();
+    opts.max_panels = 3;
+    let html = render_html_with(&data, &opts).unwrap();
+    assert_eq!(count(&html, "<details class=\"pair"), 3);
+    assert_eq!(count(&html, "<tr id=\"pair-"), data.pairs.len() - 3);
+}
+
+#[test]
+fn same_data_gives_the_same_bytes() {
+    let a = render_html(&common::wide(12)).unwrap();
+    let b = render_html(&common::wide(12)).unwrap();
+    assert_eq!(a, b);
+    // The order pairs arrive in does not change the page.
+    let mut shuffled = common::small();
+    shuffled.pairs.reverse();
+    shuffled.pairs.swap(0, 7);
+    assert_eq!(
+        render_html(&shuffled).unwrap(),
+        render_html(&common::small()).unwrap()
+    );
+}
+
+#[test]
+fn inconsistent_data_is_refused_with_a_typed_error() {
+    let mut d = common::small();
+    d.pairs[0].driver = "nowhere".into();
+    assert!(matches!(
+        render_html(&d),
+        Err(ReportError::UnknownVariable { .. })
+    ));
+
+    let mut d = common::small();
+    let dup = d.pairs[0].clone();
+    d.pairs.push(dup);
+    assert!(matches!(
+        render_html(&d),
+        Err(ReportError::DuplicatePair { .. })
+    ));
+
+    let mut d = common::small();
+    d.pairs[1].p_causal = f64::NAN;
+    assert!(matches!(
+        render_html(&d),
+        Err(ReportError::InvalidProbability { .. })
+    ));
+
+    let mut d = common::small();
+    d.pairs[2].forward.pop();
+    assert!(matches!(
+        render_html(&d),
+        Err(ReportError::ShapeMismatch { .. })
+    ));
+
+    let mut d = common::small();
+    d.variables.push(d.variables[0].clone());
+    assert!(matches!(
+        render_html(&d),
+        Err(ReportError::DuplicateVariable(_))
+    ));
+}
+
+#[test]
+fn empty_optional_parts_render() {
+    let mut d = common::small();
+    d.embeddings.clear();
+    d.notes.clear();
+    for p in &mut d.pairs {
+        p.reverse = None;
+        p.lag_profile = None;
+        p.surrogate_skills = None;
+    }
+    let html = render_html(&d).unwrap();
+    assert!(html.contains("supplied from elsewhere"));
+    assert_eq!(count(&html, "<svg"), d.pairs.len());
+}
