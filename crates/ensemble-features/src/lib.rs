@@ -1,10 +1,49 @@
-//! Shape features of cross-map skill ensembles.
+//! Shape features of cross-map skill ensembles, and the versioned feature schema.
 //!
-//! INTERFACE SKETCH (owned by the features work; bodies to be written).
-//! The crate is a leaf: it takes an [`Ensemble`] value (library sizes x replicates of skills,
-//! plus optional lag profile and surrogate skills) and never the engine itself, so ensembles
-//! read from a file fit the same door.
+//! The crate is a leaf: it takes a [`PairEvidence`] value (library sizes x replicates of
+//! skills for the hypothesis driver -> response, optionally the reverse ensemble, a lag profile,
+//! surrogate-driver skills and facts about the series) and never the engine itself, so
+//! ensembles read from a file fit the same door. [`compute`] returns one value per
+//! [`schema`] entry, `None` where the evidence is missing or does not define the feature.
+//!
+//! ```
+//! use ensemble_features::{compute, index_of, schema, Ensemble, PairEvidence};
+//!
+//! let forward = Ensemble {
+//!     library_sizes: vec![10, 20, 40, 80, 160],
+//!     skills: vec![
+//!         vec![0.20, 0.30, 0.25],
+//!         vec![0.40, 0.45, 0.35],
+//!         vec![0.55, 0.60, 0.50],
+//!         vec![0.65, 0.68, 0.62],
+//!         vec![0.70, 0.72, 0.68],
+//!     ],
+//! };
+//! forward.validate().unwrap();
+//! let evidence = PairEvidence::curve_only(forward, None);
+//! let row = compute(&evidence);
+//! assert_eq!(row.len(), schema().len());
+//! let gain = row[index_of("skill_gain").unwrap()].unwrap();
+//! assert!((gain - 0.45).abs() < 1e-12);
+//! // No lag profile was given, so lag features are missing rather than zero.
+//! assert!(row[index_of("lag_best").unwrap()].is_none());
+//! ```
 #![deny(missing_docs)]
+
+mod assemble;
+mod error;
+pub mod fit;
+mod schema;
+mod shape;
+mod stats;
+pub mod trend;
+
+pub use assemble::{available_groups, compute, try_compute};
+pub use error::FeatureError;
+pub use schema::{
+    FeatureDef, FeatureGroup, SCHEMA_VERSION, curve_only_names, index_of, names, names_in_groups,
+    schema, schema_hash, schema_markdown,
+};
 
 /// Cross-map skills for one ordered pair: `skills[i][r]` is replicate `r` at `library_sizes[i]`.
 #[derive(Debug, Clone, PartialEq)]
@@ -16,13 +55,85 @@ pub struct Ensemble {
     pub skills: Vec<Vec<f64>>,
 }
 
+impl Ensemble {
+    /// Checks the shape rules: one row per size, at least 2 sizes, sizes positive and strictly
+    /// increasing, at least 1 replicate per size and the same replicate count at every size.
+    /// Skill values themselves are not checked (NaN is allowed and means undefined).
+    pub fn validate(&self) -> Result<(), FeatureError> {
+        if self.library_sizes.len() != self.skills.len() {
+            return Err(FeatureError::ShapeMismatch {
+                sizes: self.library_sizes.len(),
+                rows: self.skills.len(),
+            });
+        }
+        if self.library_sizes.len() < 2 {
+            return Err(FeatureError::TooFewSizes {
+                found: self.library_sizes.len(),
+            });
+        }
+        for (index, &l) in self.library_sizes.iter().enumerate() {
+            if l == 0 {
+                return Err(FeatureError::ZeroLibrarySize { index });
+            }
+            if index > 0 && l <= self.library_sizes[index - 1] {
+                return Err(FeatureError::SizesNotIncreasing {
+                    index,
+                    previous: self.library_sizes[index - 1],
+                    current: l,
+                });
+            }
+        }
+        let expected = self.skills[0].len();
+        for (&library_size, row) in self.library_sizes.iter().zip(&self.skills) {
+            if row.is_empty() {
+                return Err(FeatureError::NoReplicates { library_size });
+            }
+            if row.len() != expected {
+                return Err(FeatureError::UnequalReplicates {
+                    library_size,
+                    expected,
+                    found: row.len(),
+                });
+            }
+        }
+        Ok(())
+    }
+
+    /// Number of replicates at the first library size (all sizes agree once validated).
+    pub fn replicates(&self) -> usize {
+        self.skills.first().map_or(0, Vec::len)
+    }
+}
+
 /// Skill as a function of cross-map lag at the largest library size (Ye et al. 2015).
 #[derive(Debug, Clone, PartialEq)]
 pub struct LagProfile {
     /// Cross-map lags, increasing; lag `l` estimates driver(t + l) from the response's state at t.
     pub lags: Vec<i32>,
-    /// Skill at each lag.
+    /// Skill at each lag (NaN where undefined).
     pub skills: Vec<f64>,
+}
+
+impl LagProfile {
+    /// Checks that lags and skills pair up and that lags are strictly increasing.
+    pub fn validate(&self) -> Result<(), FeatureError> {
+        if self.lags.len() != self.skills.len() {
+            return Err(FeatureError::LagShapeMismatch {
+                lags: self.lags.len(),
+                skills: self.skills.len(),
+            });
+        }
+        for index in 1..self.lags.len() {
+            if self.lags[index] <= self.lags[index - 1] {
+                return Err(FeatureError::LagsNotIncreasing {
+                    index,
+                    previous: self.lags[index - 1],
+                    current: self.lags[index],
+                });
+            }
+        }
+        Ok(())
+    }
 }
 
 /// Facts about the two series behind a pair, known only when the series themselves were seen.
@@ -55,57 +166,25 @@ pub struct PairEvidence {
     pub reverse: Option<Ensemble>,
     /// Lag profile for driver -> response, when computed.
     pub lag: Option<LagProfile>,
-    /// Skills of surrogate drivers at the largest library size, when computed.
+    /// One skill per surrogate driver at the largest library size, when computed. Each value
+    /// must be the same statistic as the real one it is compared with: the replicate mean of
+    /// skill at the largest L (`skill_final_mean`).
     pub surrogate_skills: Option<Vec<f64>>,
     /// Facts about the two series, when the series themselves were seen (not for curves
     /// read from elsewhere).
     pub context: Option<PairContext>,
 }
 
-/// Which kind of evidence a feature needs; curve-only input has only [`FeatureGroup::Curve`]
-/// and [`FeatureGroup::Contrast`] (when the reverse direction is present).
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum FeatureGroup {
-    /// Computed from the forward ensemble alone.
-    Curve,
-    /// Needs the reverse ensemble.
-    Contrast,
-    /// Needs the lag profile.
-    Lag,
-    /// Needs surrogate skills.
-    Surrogate,
-    /// Needs the series themselves.
-    Context,
-}
-
-/// One column of the feature schema.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct FeatureDef {
-    /// Column name in `features.csv` (snake_case, stable).
-    pub name: &'static str,
-    /// One-line meaning.
-    pub meaning: &'static str,
-    /// Range of values, in words (e.g. "[-1, 1]").
-    pub range: &'static str,
-    /// Evidence the feature needs.
-    pub group: FeatureGroup,
-}
-
-/// Schema version; bump on any change of names, order or meaning.
-pub const SCHEMA_VERSION: u32 = 1;
-
-/// The feature schema, in column order.
-pub fn schema() -> &'static [FeatureDef] {
-    todo!("features work")
-}
-
-/// Stable hash (hex) of the schema's names, order, groups and version; model files record it.
-pub fn schema_hash() -> String {
-    todo!("features work")
-}
-
-/// Feature values in schema order; `None` marks a feature unavailable for this input.
-pub fn compute(evidence: &PairEvidence) -> Vec<Option<f64>> {
-    let _ = evidence;
-    todo!("features work")
+impl PairEvidence {
+    /// Evidence from curves alone (e.g. a `curves.csv` written elsewhere): no lag profile,
+    /// surrogates or context.
+    pub fn curve_only(forward: Ensemble, reverse: Option<Ensemble>) -> Self {
+        PairEvidence {
+            forward,
+            reverse,
+            lag: None,
+            surrogate_skills: None,
+            context: None,
+        }
+    }
 }
