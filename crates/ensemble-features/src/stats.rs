@@ -16,8 +16,12 @@ pub(crate) fn sorted_finite(values: &[f64]) -> Vec<f64> {
 }
 
 /// Arithmetic mean of the finite values; `None` when there are none.
+///
+/// Sums in sorted order so the result is bit-identical under any reordering of replicates:
+/// a last-digit difference could otherwise tip the exponential fit between two near-equal
+/// grid minima.
 pub(crate) fn mean(values: &[f64]) -> Option<f64> {
-    let v = finite(values);
+    let v = sorted_finite(values);
     if v.is_empty() {
         return None;
     }
@@ -26,7 +30,7 @@ pub(crate) fn mean(values: &[f64]) -> Option<f64> {
 
 /// Sample standard deviation (divisor n - 1) of the finite values; `None` below two values.
 pub(crate) fn sd(values: &[f64]) -> Option<f64> {
-    let v = finite(values);
+    let v = sorted_finite(values);
     if v.len() < 2 {
         return None;
     }
