@@ -41,8 +41,8 @@ pub mod trend;
 pub use assemble::{available_groups, compute, try_compute};
 pub use error::FeatureError;
 pub use schema::{
-    FeatureDef, FeatureGroup, SCHEMA_VERSION, curve_only_names, index_of, names, names_in_groups,
-    schema, schema_hash, schema_markdown,
+    FeatureDef, FeatureGroup, SCHEMA_VERSION, curve_only_indices, curve_only_names, index_of,
+    names, names_in_groups, schema, schema_hash, schema_markdown,
 };
 
 /// Cross-map skills for one ordered pair: `skills[i][r]` is replicate `r` at `library_sizes[i]`.
@@ -186,5 +186,95 @@ impl PairEvidence {
             surrogate_skills: None,
             context: None,
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn ens(sizes: &[usize], reps: &[usize]) -> Ensemble {
+        Ensemble {
+            library_sizes: sizes.to_vec(),
+            skills: reps.iter().map(|&r| vec![0.5; r]).collect(),
+        }
+    }
+
+    #[test]
+    fn a_well_formed_ensemble_passes() {
+        assert_eq!(ens(&[10, 20, 40], &[3, 3, 3]).validate(), Ok(()));
+        assert_eq!(ens(&[10, 20], &[1, 1]).validate(), Ok(()));
+    }
+
+    #[test]
+    fn each_shape_rule_has_its_own_error() {
+        assert_eq!(
+            ens(&[10], &[3]).validate(),
+            Err(FeatureError::TooFewSizes { found: 1 })
+        );
+        assert_eq!(
+            ens(&[10, 20], &[3]).validate(),
+            Err(FeatureError::ShapeMismatch { sizes: 2, rows: 1 })
+        );
+        assert_eq!(
+            ens(&[10, 10], &[3, 3]).validate(),
+            Err(FeatureError::SizesNotIncreasing {
+                index: 1,
+                previous: 10,
+                current: 10
+            })
+        );
+        assert_eq!(
+            ens(&[0, 10], &[3, 3]).validate(),
+            Err(FeatureError::ZeroLibrarySize { index: 0 })
+        );
+        assert_eq!(
+            ens(&[10, 20], &[0, 0]).validate(),
+            Err(FeatureError::NoReplicates { library_size: 10 })
+        );
+        assert_eq!(
+            ens(&[10, 20, 40], &[3, 3, 2]).validate(),
+            Err(FeatureError::UnequalReplicates {
+                library_size: 40,
+                expected: 3,
+                found: 2
+            })
+        );
+    }
+
+    #[test]
+    fn error_messages_name_the_fix() {
+        let msg = ens(&[10, 20], &[3, 2]).validate().unwrap_err().to_string();
+        assert!(msg.contains("library size 20") && msg.contains("same number of replicates"));
+        let msg = ens(&[10], &[3]).validate().unwrap_err().to_string();
+        assert!(msg.contains("at least 2"));
+    }
+
+    #[test]
+    fn lag_profiles_are_checked() {
+        let bad = LagProfile {
+            lags: vec![0, -1],
+            skills: vec![0.1, 0.2],
+        };
+        assert!(matches!(
+            bad.validate(),
+            Err(FeatureError::LagsNotIncreasing { index: 1, .. })
+        ));
+        let short = LagProfile {
+            lags: vec![0, 1],
+            skills: vec![0.1],
+        };
+        assert_eq!(
+            short.validate(),
+            Err(FeatureError::LagShapeMismatch { lags: 2, skills: 1 })
+        );
+    }
+
+    #[test]
+    fn compute_is_lenient_where_try_compute_is_strict() {
+        let ev = PairEvidence::curve_only(ens(&[10, 20, 40], &[3, 3, 2]), None);
+        assert!(try_compute(&ev).is_err());
+        let row = compute(&ev);
+        assert_eq!(row[index_of("skill_final_mean").unwrap()], Some(0.5));
     }
 }

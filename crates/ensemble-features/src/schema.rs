@@ -488,6 +488,16 @@ pub fn curve_only_names() -> Vec<&'static str> {
         .collect()
 }
 
+/// Column positions of [`curve_only_names`], for slicing a full row down to a curve-only one.
+pub fn curve_only_indices() -> Vec<usize> {
+    SCHEMA
+        .iter()
+        .enumerate()
+        .filter(|(_, d)| d.group.is_curve_only())
+        .map(|(i, _)| i)
+        .collect()
+}
+
 /// Hex SHA-256 of the schema's identity: the line `ensemble-features schema v<VERSION>`, then
 /// one line `<name>\t<group label>` per feature in column order. Meanings and ranges are
 /// excluded so a reworded doc line does not orphan model files; any change of meaning must

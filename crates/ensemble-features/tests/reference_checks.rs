@@ -67,3 +67,48 @@ fn exponential_fit_matches_scipy_curve_fit() {
         assert_relative_eq!(fit.rmse, want("rmse"), max_relative = 1e-4);
     }
 }
+
+/// Curve features of a seeded ensemble with undefined skills, against an independent numpy
+/// 2.1.3 / scipy 1.14.1 computation (nanmean, nanmedian, nanstd ddof=1, nanpercentile,
+/// polyfit, kendalltau) of the definitions in docs/features.md.
+#[test]
+fn curve_features_match_numpy_recomputation() {
+    use ensemble_features::{Ensemble, PairEvidence, compute, index_of};
+    let fx = fixture("features_summary.json");
+    let library_sizes = fx["library_sizes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_u64().unwrap() as usize)
+        .collect();
+    let skills = fx["skills"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|row| {
+            row.as_array()
+                .unwrap()
+                .iter()
+                .map(|v| v.as_f64().unwrap_or(f64::NAN))
+                .collect()
+        })
+        .collect();
+    let ensemble = Ensemble {
+        library_sizes,
+        skills,
+    };
+    ensemble.validate().unwrap();
+    let row = compute(&PairEvidence::curve_only(ensemble, None));
+    let want = fx["features"].as_object().unwrap();
+    assert!(want.len() >= 20);
+    for (name, value) in want {
+        let got = row[index_of(name).unwrap_or_else(|| panic!("{name} not in schema"))]
+            .unwrap_or_else(|| panic!("{name} undefined"));
+        assert_relative_eq!(
+            got,
+            value.as_f64().unwrap(),
+            epsilon = 1e-10,
+            max_relative = 1e-10
+        );
+    }
+}
