@@ -236,3 +236,84 @@ fn set_context(row: &mut Row, real: Option<f64>, c: &PairContext) {
         real.zip(corr).map(|(r, c)| r - c.abs()),
     );
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::Ensemble;
+
+    fn forward() -> Ensemble {
+        Ensemble {
+            library_sizes: vec![10, 20, 40, 80],
+            skills: vec![
+                vec![0.1, 0.2],
+                vec![0.3, 0.4],
+                vec![0.5, 0.6],
+                vec![0.5, 0.75],
+            ],
+        }
+    }
+
+    fn get(row: &[Option<f64>], name: &str) -> Option<f64> {
+        row[index_of(name).unwrap()]
+    }
+
+    #[test]
+    fn lag_ties_go_to_the_lag_nearest_zero_then_the_negative_one() {
+        let mut ev = PairEvidence::curve_only(forward(), None);
+        ev.lag = Some(LagProfile {
+            lags: vec![-2, -1, 0, 1, 2],
+            skills: vec![0.5, 0.7, 0.6, 0.7, 0.5],
+        });
+        let row = compute(&ev);
+        assert_eq!(get(&row, "lag_best"), Some(-1.0));
+        assert_eq!(get(&row, "lag_best_scaled"), Some(-0.5));
+        assert!((get(&row, "lag_gap").unwrap() - 0.1).abs() < 1e-12);
+    }
+
+    #[test]
+    fn an_all_undefined_lag_profile_is_a_missing_group() {
+        let mut ev = PairEvidence::curve_only(forward(), None);
+        ev.lag = Some(LagProfile {
+            lags: vec![-1, 0],
+            skills: vec![f64::NAN, f64::NAN],
+        });
+        assert!(!available_groups(&ev).contains(&FeatureGroup::Lag));
+        assert!(get(&compute(&ev), "lag_best").is_none());
+    }
+
+    #[test]
+    fn surrogate_ties_count_half_and_p_is_never_zero() {
+        let mut ev = PairEvidence::curve_only(forward(), None);
+        ev.surrogate_skills = Some(vec![0.0, 0.625, 0.9, f64::NAN]);
+        let row = compute(&ev);
+        // skill_final_mean is 0.625: one surrogate below, one tied, one above.
+        assert!((get(&row, "surrogate_percentile").unwrap() - 0.5).abs() < 1e-12);
+        assert!((get(&row, "surrogate_p").unwrap() - 3.0 / 4.0).abs() < 1e-12);
+        ev.surrogate_skills = Some(vec![0.1, 0.1, 0.1]);
+        let row = compute(&ev);
+        assert_eq!(get(&row, "surrogate_z"), Some(Z_CLAMP));
+        assert!((get(&row, "surrogate_p").unwrap() - 0.25).abs() < 1e-12);
+    }
+
+    #[test]
+    fn undefined_context_values_stay_missing() {
+        let mut ev = PairEvidence::curve_only(forward(), None);
+        ev.context = Some(PairContext {
+            n_points: 200,
+            e_driver: 2,
+            e_response: 2,
+            tau_driver: 1,
+            tau_response: 1,
+            simplex_driver: f64::NAN,
+            simplex_response: 0.01,
+            correlation: f64::NAN,
+        });
+        let row = compute(&ev);
+        assert!(get(&row, "correlation").is_none());
+        assert!(get(&row, "skill_minus_abs_correlation").is_none());
+        assert!(get(&row, "skill_over_simplex_driver").is_none());
+        // A near-unpredictable response is floored at 0.05 and the ratio clamped.
+        assert_eq!(get(&row, "skill_over_simplex_response"), Some(RATIO_CLAMP));
+    }
+}

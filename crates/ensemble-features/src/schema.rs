@@ -115,7 +115,7 @@ static SCHEMA: [FeatureDef; 61] = [
     def(
         "fit_rmse",
         "root mean squared residual of the exponential fit to the mean curve",
-        "[0, 2]",
+        "[0, 1]",
         Curve,
     ),
     // Slope.
@@ -215,7 +215,7 @@ static SCHEMA: [FeatureDef; 61] = [
     def(
         "mk_z",
         "Mann-Kendall Z (tie-corrected variance, continuity correction) of the mean curve against L",
-        "real, |z| < sqrt(1.5 n_sizes)",
+        "real, abs(z) < 1.5 sqrt(n_sizes); grows with the number of sizes",
         Curve,
     ),
     def(
@@ -337,7 +337,7 @@ static SCHEMA: [FeatureDef; 61] = [
     // Lagged cross mapping (Ye et al. 2015).
     def(
         "lag_best",
-        "cross-map lag (time steps) of best skill; negative when the driver's past is best estimated",
+        "cross-map lag (time steps) of best skill; negative when the response's state best reflects the driver's past, as expected of a true driver",
         "within the computed lags",
         Lag,
     ),
@@ -568,8 +568,8 @@ pub fn schema_markdown() -> String {
             i + 1,
             d.name,
             d.group.label(),
-            d.range,
-            d.meaning
+            d.range.replace('|', "\\|"),
+            d.meaning.replace('|', "\\|")
         ));
     }
     s
@@ -607,6 +607,25 @@ mod tests {
         assert_eq!(h.len(), 64);
         assert!(h.chars().all(|c| c.is_ascii_hexdigit()));
         assert_eq!(h, schema_hash());
+    }
+
+    /// Pinned so that a change of names, order or groups cannot slip by: update the literal
+    /// only together with a bump of SCHEMA_VERSION (model files record the hash).
+    #[test]
+    fn schema_hash_is_pinned() {
+        assert_eq!(SCHEMA_VERSION, 1);
+        assert_eq!(
+            schema_hash(),
+            "237a10fbed6838afae788a0a0400b38e99450c50b265de1faf99d38a8354afc2"
+        );
+    }
+
+    #[test]
+    fn curve_only_indices_match_names() {
+        let all = names();
+        let picked: Vec<&str> = curve_only_indices().into_iter().map(|i| all[i]).collect();
+        assert_eq!(picked, curve_only_names());
+        assert_eq!(picked.len(), 41);
     }
 
     #[test]
