@@ -30,9 +30,12 @@ pub struct ExpFit {
 
 /// For a fixed rate the model is linear in (rho_inf, a): the closed-form least-squares solution
 /// and its residual sum of squares, from centred sums for numerical stability.
-fn solve_at(rate: f64, x: &[f64], y: &[f64]) -> (f64, f64, f64) {
+/// `e` is scratch space of the same length as `x`, reused across the search.
+fn solve_at(rate: f64, x: &[f64], y: &[f64], e: &mut [f64]) -> (f64, f64, f64) {
     let n = x.len() as f64;
-    let e: Vec<f64> = x.iter().map(|xi| (-rate * xi).exp()).collect();
+    for (ei, xi) in e.iter_mut().zip(x) {
+        *ei = (-rate * xi).exp();
+    }
     let me = e.iter().sum::<f64>() / n;
     let my = y.iter().sum::<f64>() / n;
     let mut see = 0.0;
@@ -82,7 +85,8 @@ pub fn fit_exponential(x: &[f64], y: &[f64]) -> Option<ExpFit> {
     let grid: Vec<f64> = (0..=steps)
         .map(|k| lo + (hi - lo) * k as f64 / steps as f64)
         .collect();
-    let sse_at = |log_rate: f64| solve_at(log_rate.exp(), &xs, &ys).2;
+    let mut scratch = vec![0.0; xs.len()];
+    let mut sse_at = |log_rate: f64| solve_at(log_rate.exp(), &xs, &ys, &mut scratch).2;
     let (mut best_k, mut best_sse) = (0, f64::INFINITY);
     for (k, &lr) in grid.iter().enumerate() {
         let s = sse_at(lr);
@@ -121,7 +125,7 @@ pub fn fit_exponential(x: &[f64], y: &[f64]) -> Option<ExpFit> {
     }
 
     let rate = log_rate.exp();
-    let (asymptote, amplitude, sse) = solve_at(rate, &xs, &ys);
+    let (asymptote, amplitude, sse) = solve_at(rate, &xs, &ys, &mut vec![0.0; xs.len()]);
     let n = xs.len() as f64;
     let my = ys.iter().sum::<f64>() / n;
     let sst: f64 = ys.iter().map(|v| (v - my) * (v - my)).sum();

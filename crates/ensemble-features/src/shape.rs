@@ -2,7 +2,7 @@
 
 use crate::Ensemble;
 use crate::fit::{ExpFit, fit_exponential};
-use crate::stats::{iqr, mean, median, ols_slope, sd};
+use crate::stats::{Summary, ols_slope};
 use crate::trend::{kendall_tau_b, mann_kendall};
 
 /// Floor added to standard deviations before ratios and logs: an ensemble at L equal to the
@@ -66,21 +66,25 @@ pub(crate) fn curve_shape(ensemble: &Ensemble) -> CurveShape {
     }
 
     // Usable sizes: positive, paired with a row, at least one defined skill.
-    let rows: Vec<(f64, &Vec<f64>, f64)> = ensemble
+    let rows: Vec<(f64, &Vec<f64>, Summary, f64)> = ensemble
         .library_sizes
         .iter()
         .zip(&ensemble.skills)
         .filter(|(l, _)| **l > 0)
-        .filter_map(|(l, row)| mean(row).map(|m| (*l as f64, row, m)))
+        .filter_map(|(l, row)| {
+            let summary = Summary::new(row);
+            summary.mean().map(|m| (*l as f64, row, summary, m))
+        })
         .collect();
     if rows.len() < 2 {
         return out;
     }
     let n = rows.len();
     let sizes: Vec<f64> = rows.iter().map(|r| r.0).collect();
-    let means: Vec<f64> = rows.iter().map(|r| r.2).collect();
+    let means: Vec<f64> = rows.iter().map(|r| r.3).collect();
     let log10_l: Vec<f64> = sizes.iter().map(|l| l.log10()).collect();
     let (first, last) = (rows[0].1, rows[n - 1].1);
+    let (s_first, s_mid_of, s_last) = (&rows[0].2, |i: usize| &rows[i].2, &rows[n - 1].2);
 
     out.log10_size_max = Some(log10_l[n - 1]);
     let span = log10_l[n - 1] - log10_l[0];
@@ -91,7 +95,7 @@ pub(crate) fn curve_shape(ensemble: &Ensemble) -> CurveShape {
 
     // Plateau.
     out.final_mean = Some(means[n - 1]);
-    out.final_median = median(last);
+    out.final_median = s_last.median();
     let x: Vec<f64> = sizes.iter().map(|l| l / sizes[n - 1]).collect();
     out.fit = fit_exponential(&x, &means);
 
@@ -120,18 +124,19 @@ pub(crate) fn curve_shape(ensemble: &Ensemble) -> CurveShape {
                 .total_cmp(&(log10_l[b] - mid_target).abs())
         })
         .unwrap_or(0);
-    out.sd_small = sd(first);
-    out.sd_mid = sd(rows[imid].1);
-    out.sd_large = sd(last);
-    out.iqr_small = iqr(first);
-    out.iqr_mid = iqr(rows[imid].1);
-    out.iqr_large = iqr(last);
+    let s_mid = s_mid_of(imid);
+    out.sd_small = s_first.sd();
+    out.sd_mid = s_mid.sd();
+    out.sd_large = s_last.sd();
+    out.iqr_small = s_first.iqr();
+    out.iqr_mid = s_mid.iqr();
+    out.iqr_large = s_last.iqr();
     if let (Some(s0), Some(s1)) = (out.sd_small, out.sd_large) {
         out.spread_log_ratio = Some(((s1 + SD_FLOOR) / (s0 + SD_FLOOR)).ln());
     }
     let (ln_l, ln_sd): (Vec<f64>, Vec<f64>) = rows
         .iter()
-        .filter_map(|(l, row, _)| sd(row).map(|s| (l.ln(), (s + SD_FLOOR).ln())))
+        .filter_map(|(l, _, summary, _)| summary.sd().map(|s| (l.ln(), (s + SD_FLOOR).ln())))
         .unzip();
     out.spread_decay_slope = ols_slope(&ln_l, &ln_sd);
     out.gain_over_spread = out.sd_small.map(|s0| (gain / (s0 + SD_FLOOR)).asinh());

@@ -11,32 +11,67 @@ pub(crate) fn finite(values: &[f64]) -> Vec<f64> {
 /// Finite values sorted ascending.
 pub(crate) fn sorted_finite(values: &[f64]) -> Vec<f64> {
     let mut v = finite(values);
-    v.sort_by(f64::total_cmp);
+    // Elements equal under total_cmp are bitwise equal, so an unstable sort loses nothing.
+    v.sort_unstable_by(f64::total_cmp);
     v
 }
 
-/// Arithmetic mean of the finite values; `None` when there are none.
+/// The finite values of one sample, sorted once so every summary reads the same slice.
 ///
-/// Sums in sorted order so the result is bit-identical under any reordering of replicates:
-/// a last-digit difference could otherwise tip the exponential fit between two near-equal
-/// grid minima.
-pub(crate) fn mean(values: &[f64]) -> Option<f64> {
-    let v = sorted_finite(values);
-    if v.is_empty() {
-        return None;
+/// Sums run in sorted order, so each summary is bit-identical under any reordering of the
+/// replicates: a last-digit difference could otherwise tip the exponential fit between two
+/// near-equal grid minima.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Summary {
+    sorted: Vec<f64>,
+}
+
+impl Summary {
+    /// Summarises the finite values of `values`.
+    pub fn new(values: &[f64]) -> Self {
+        Summary {
+            sorted: sorted_finite(values),
+        }
     }
-    Some(v.iter().sum::<f64>() / v.len() as f64)
+
+    /// Arithmetic mean; `None` when there are no finite values.
+    pub fn mean(&self) -> Option<f64> {
+        if self.sorted.is_empty() {
+            return None;
+        }
+        Some(self.sorted.iter().sum::<f64>() / self.sorted.len() as f64)
+    }
+
+    /// Sample standard deviation (divisor n - 1); `None` below two values.
+    pub fn sd(&self) -> Option<f64> {
+        let n = self.sorted.len();
+        if n < 2 {
+            return None;
+        }
+        let m = self.mean()?;
+        let ss: f64 = self.sorted.iter().map(|x| (x - m) * (x - m)).sum();
+        Some((ss / (n - 1) as f64).sqrt())
+    }
+
+    /// Median.
+    pub fn median(&self) -> Option<f64> {
+        quantile_sorted(&self.sorted, 0.5)
+    }
+
+    /// Interquartile range (75th minus 25th percentile).
+    pub fn iqr(&self) -> Option<f64> {
+        Some(quantile_sorted(&self.sorted, 0.75)? - quantile_sorted(&self.sorted, 0.25)?)
+    }
+}
+
+/// Arithmetic mean of the finite values; `None` when there are none.
+pub(crate) fn mean(values: &[f64]) -> Option<f64> {
+    Summary::new(values).mean()
 }
 
 /// Sample standard deviation (divisor n - 1) of the finite values; `None` below two values.
 pub(crate) fn sd(values: &[f64]) -> Option<f64> {
-    let v = sorted_finite(values);
-    if v.len() < 2 {
-        return None;
-    }
-    let m = v.iter().sum::<f64>() / v.len() as f64;
-    let ss: f64 = v.iter().map(|x| (x - m) * (x - m)).sum();
-    Some((ss / (v.len() - 1) as f64).sqrt())
+    Summary::new(values).sd()
 }
 
 /// Quantile `q` in [0, 1] of ascending `sorted` values by linear interpolation between order
@@ -52,14 +87,15 @@ pub(crate) fn quantile_sorted(sorted: &[f64], q: f64) -> Option<f64> {
 }
 
 /// Median of the finite values.
-pub(crate) fn median(values: &[f64]) -> Option<f64> {
-    quantile_sorted(&sorted_finite(values), 0.5)
+#[cfg(test)]
+fn median(values: &[f64]) -> Option<f64> {
+    Summary::new(values).median()
 }
 
 /// Interquartile range (75th minus 25th percentile) of the finite values.
-pub(crate) fn iqr(values: &[f64]) -> Option<f64> {
-    let s = sorted_finite(values);
-    Some(quantile_sorted(&s, 0.75)? - quantile_sorted(&s, 0.25)?)
+#[cfg(test)]
+fn iqr(values: &[f64]) -> Option<f64> {
+    Summary::new(values).iqr()
 }
 
 /// Ordinary least-squares slope of `y` on `x`; `None` below two points or when `x` is constant.
