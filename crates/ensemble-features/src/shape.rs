@@ -65,7 +65,8 @@ pub(crate) fn curve_shape(ensemble: &Ensemble) -> CurveShape {
         out.nan_share = Some(undefined as f64 / total as f64);
     }
 
-    // Usable sizes: positive, paired with a row, at least one defined skill.
+    // Usable sizes: positive, paired with a row, at least one defined skill. Each entry holds
+    // (L, raw replicate skills, their summary, their mean).
     let rows: Vec<(f64, &Vec<f64>, Summary, f64)> = ensemble
         .library_sizes
         .iter()
@@ -84,7 +85,7 @@ pub(crate) fn curve_shape(ensemble: &Ensemble) -> CurveShape {
     let means: Vec<f64> = rows.iter().map(|r| r.3).collect();
     let log10_l: Vec<f64> = sizes.iter().map(|l| l.log10()).collect();
     let (first, last) = (rows[0].1, rows[n - 1].1);
-    let (s_first, s_mid_of, s_last) = (&rows[0].2, |i: usize| &rows[i].2, &rows[n - 1].2);
+    let (s_first, s_last) = (&rows[0].2, &rows[n - 1].2);
 
     out.log10_size_max = Some(log10_l[n - 1]);
     let span = log10_l[n - 1] - log10_l[0];
@@ -124,7 +125,7 @@ pub(crate) fn curve_shape(ensemble: &Ensemble) -> CurveShape {
                 .total_cmp(&(log10_l[b] - mid_target).abs())
         })
         .unwrap_or(0);
-    let s_mid = s_mid_of(imid);
+    let s_mid = &rows[imid].2;
     out.sd_small = s_first.sd();
     out.sd_mid = s_mid.sd();
     out.sd_large = s_last.sd();
