@@ -62,6 +62,16 @@ pub enum FeatureError {
         /// Replicate count at this library size.
         found: usize,
     },
+    /// The same (library size, replicate) member was given twice.
+    #[error(
+        "library size {library_size}, replicate {replicate} appears more than once; each ensemble member must be listed exactly once"
+    )]
+    DuplicateMember {
+        /// Library size of the repeated member.
+        library_size: usize,
+        /// Replicate index of the repeated member.
+        replicate: usize,
+    },
     /// The reverse ensemble (response -> driver) is invalid; the forward one passed.
     #[error("reverse ensemble (response -> driver): {0}")]
     Reverse(Box<FeatureError>),

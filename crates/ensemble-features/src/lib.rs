@@ -99,6 +99,41 @@ impl Ensemble {
         Ok(())
     }
 
+    /// Builds a validated ensemble from members `(library_size, replicate, skill)` in any
+    /// order, as `curves.csv` lists them one per row. Within each size, skills are ordered by
+    /// replicate index, so position r pairs the r-th smallest replicate index at every size
+    /// (what `rising_share` compares). Fails on a repeated member or on any rule of
+    /// [`Ensemble::validate`].
+    pub fn from_members<I>(members: I) -> Result<Ensemble, FeatureError>
+    where
+        I: IntoIterator<Item = (usize, usize, f64)>,
+    {
+        use std::collections::BTreeMap;
+        let mut by_size: BTreeMap<usize, BTreeMap<usize, f64>> = BTreeMap::new();
+        for (library_size, replicate, skill) in members {
+            if by_size
+                .entry(library_size)
+                .or_default()
+                .insert(replicate, skill)
+                .is_some()
+            {
+                return Err(FeatureError::DuplicateMember {
+                    library_size,
+                    replicate,
+                });
+            }
+        }
+        let ensemble = Ensemble {
+            library_sizes: by_size.keys().copied().collect(),
+            skills: by_size
+                .into_values()
+                .map(|reps| reps.into_values().collect())
+                .collect(),
+        };
+        ensemble.validate()?;
+        Ok(ensemble)
+    }
+
     /// Number of replicates at the first library size (all sizes agree once validated).
     pub fn replicates(&self) -> usize {
         self.skills.first().map_or(0, Vec::len)
@@ -248,6 +283,35 @@ mod tests {
         assert!(msg.contains("library size 20") && msg.contains("same number of replicates"));
         let msg = ens(&[10], &[3]).validate().unwrap_err().to_string();
         assert!(msg.contains("at least 2"));
+    }
+
+    #[test]
+    fn members_in_any_order_build_the_ensemble() {
+        let e =
+            Ensemble::from_members([(20, 1, 0.4), (10, 0, 0.1), (20, 0, 0.3), (10, 1, f64::NAN)])
+                .unwrap();
+        assert_eq!(e.library_sizes, vec![10, 20]);
+        assert_eq!(e.skills[1], vec![0.3, 0.4]);
+        assert!(e.skills[0][1].is_nan());
+        assert_eq!(
+            Ensemble::from_members([(10, 0, 0.1), (10, 0, 0.2), (20, 0, 0.3)]),
+            Err(FeatureError::DuplicateMember {
+                library_size: 10,
+                replicate: 0
+            })
+        );
+        assert_eq!(
+            Ensemble::from_members([(10, 0, 0.1), (10, 1, 0.2), (20, 0, 0.3)]),
+            Err(FeatureError::UnequalReplicates {
+                library_size: 20,
+                expected: 2,
+                found: 1
+            })
+        );
+        assert_eq!(
+            Ensemble::from_members([(10, 0, 0.1), (10, 1, 0.2)]),
+            Err(FeatureError::TooFewSizes { found: 1 })
+        );
     }
 
     #[test]
