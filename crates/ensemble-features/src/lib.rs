@@ -1,10 +1,49 @@
-//! Shape features of cross-map skill ensembles.
+//! Shape features of cross-map skill ensembles, and the versioned feature schema.
 //!
-//! INTERFACE SKETCH (owned by the features work; bodies to be written).
-//! The crate is a leaf: it takes an [`Ensemble`] value (library sizes x replicates of skills,
-//! plus optional lag profile and surrogate skills) and never the engine itself, so ensembles
-//! read from a file fit the same door.
+//! The crate is a leaf: it takes a [`PairEvidence`] value (library sizes x replicates of
+//! skills for the hypothesis driver -> response, optionally the reverse ensemble, a lag profile,
+//! surrogate-driver skills and facts about the series) and never the engine itself, so
+//! ensembles read from a file fit the same door. [`compute`] returns one value per
+//! [`schema`] entry, `None` where the evidence is missing or does not define the feature.
+//!
+//! ```
+//! use ensemble_features::{compute, index_of, schema, Ensemble, PairEvidence};
+//!
+//! let forward = Ensemble {
+//!     library_sizes: vec![10, 20, 40, 80, 160],
+//!     skills: vec![
+//!         vec![0.20, 0.30, 0.25],
+//!         vec![0.40, 0.45, 0.35],
+//!         vec![0.55, 0.60, 0.50],
+//!         vec![0.65, 0.68, 0.62],
+//!         vec![0.70, 0.72, 0.68],
+//!     ],
+//! };
+//! forward.validate().unwrap();
+//! let evidence = PairEvidence::curve_only(forward, None);
+//! let row = compute(&evidence);
+//! assert_eq!(row.len(), schema().len());
+//! let gain = row[index_of("skill_gain").unwrap()].unwrap();
+//! assert!((gain - 0.45).abs() < 1e-12);
+//! // No lag profile was given, so lag features are missing rather than zero.
+//! assert!(row[index_of("lag_best").unwrap()].is_none());
+//! ```
 #![deny(missing_docs)]
+
+mod assemble;
+mod error;
+pub mod fit;
+mod schema;
+mod shape;
+mod stats;
+pub mod trend;
+
+pub use assemble::{available_groups, compute, try_compute};
+pub use error::FeatureError;
+pub use schema::{
+    FeatureDef, FeatureGroup, SCHEMA_VERSION, curve_only_indices, curve_only_names, index_of,
+    names, names_in_groups, schema, schema_hash, schema_markdown,
+};
 
 /// Cross-map skills for one ordered pair: `skills[i][r]` is replicate `r` at `library_sizes[i]`.
 #[derive(Debug, Clone, PartialEq)]
@@ -16,13 +55,120 @@ pub struct Ensemble {
     pub skills: Vec<Vec<f64>>,
 }
 
+impl Ensemble {
+    /// Checks the shape rules: one row per size, at least 2 sizes, sizes positive and strictly
+    /// increasing, at least 1 replicate per size and the same replicate count at every size.
+    /// Skill values themselves are not checked (NaN is allowed and means undefined).
+    pub fn validate(&self) -> Result<(), FeatureError> {
+        if self.library_sizes.len() != self.skills.len() {
+            return Err(FeatureError::ShapeMismatch {
+                sizes: self.library_sizes.len(),
+                rows: self.skills.len(),
+            });
+        }
+        if self.library_sizes.len() < 2 {
+            return Err(FeatureError::TooFewSizes {
+                found: self.library_sizes.len(),
+            });
+        }
+        for (index, &l) in self.library_sizes.iter().enumerate() {
+            if l == 0 {
+                return Err(FeatureError::ZeroLibrarySize { index });
+            }
+            if index > 0 && l <= self.library_sizes[index - 1] {
+                return Err(FeatureError::SizesNotIncreasing {
+                    index,
+                    previous: self.library_sizes[index - 1],
+                    current: l,
+                });
+            }
+        }
+        let expected = self.skills[0].len();
+        for (&library_size, row) in self.library_sizes.iter().zip(&self.skills) {
+            if row.is_empty() {
+                return Err(FeatureError::NoReplicates { library_size });
+            }
+            if row.len() != expected {
+                return Err(FeatureError::UnequalReplicates {
+                    library_size,
+                    expected,
+                    found: row.len(),
+                });
+            }
+        }
+        Ok(())
+    }
+
+    /// Builds a validated ensemble from members `(library_size, replicate, skill)` in any
+    /// order, as `curves.csv` lists them one per row. Within each size, skills are ordered by
+    /// replicate index, so position r pairs the r-th smallest replicate index at every size
+    /// (what `rising_share` compares). Fails on a repeated member or on any rule of
+    /// [`Ensemble::validate`].
+    pub fn from_members<I>(members: I) -> Result<Ensemble, FeatureError>
+    where
+        I: IntoIterator<Item = (usize, usize, f64)>,
+    {
+        use std::collections::BTreeMap;
+        let mut by_size: BTreeMap<usize, BTreeMap<usize, f64>> = BTreeMap::new();
+        for (library_size, replicate, skill) in members {
+            if by_size
+                .entry(library_size)
+                .or_default()
+                .insert(replicate, skill)
+                .is_some()
+            {
+                return Err(FeatureError::DuplicateMember {
+                    library_size,
+                    replicate,
+                });
+            }
+        }
+        let ensemble = Ensemble {
+            library_sizes: by_size.keys().copied().collect(),
+            skills: by_size
+                .into_values()
+                .map(|reps| reps.into_values().collect())
+                .collect(),
+        };
+        ensemble.validate()?;
+        Ok(ensemble)
+    }
+
+    /// Number of replicates at the first library size (all sizes agree once validated).
+    pub fn replicates(&self) -> usize {
+        self.skills.first().map_or(0, Vec::len)
+    }
+}
+
 /// Skill as a function of cross-map lag at the largest library size (Ye et al. 2015).
 #[derive(Debug, Clone, PartialEq)]
 pub struct LagProfile {
     /// Cross-map lags, increasing; lag `l` estimates driver(t + l) from the response's state at t.
     pub lags: Vec<i32>,
-    /// Skill at each lag.
+    /// Skill at each lag (NaN where undefined).
     pub skills: Vec<f64>,
+}
+
+impl LagProfile {
+    /// Checks that lags and skills pair up and that lags are strictly increasing.
+    pub fn validate(&self) -> Result<(), FeatureError> {
+        if self.lags.len() != self.skills.len() {
+            return Err(FeatureError::LagShapeMismatch {
+                lags: self.lags.len(),
+                skills: self.skills.len(),
+            });
+        }
+        for index in 1..self.lags.len() {
+            if self.lags[index] <= self.lags[index - 1] {
+                return Err(FeatureError::LagsNotIncreasing {
+                    index,
+                    previous: self.lags[index - 1],
+                    current: self.lags[index],
+                });
+            }
+        }
+        Ok(())
+    }
 }
 
 /// Facts about the two series behind a pair, known only when the series themselves were seen.
@@ -55,57 +201,144 @@ pub struct PairEvidence {
     pub reverse: Option<Ensemble>,
     /// Lag profile for driver -> response, when computed.
     pub lag: Option<LagProfile>,
-    /// Skills of surrogate drivers at the largest library size, when computed.
+    /// One skill per surrogate driver at the largest library size, when computed. Each value
+    /// must be the same statistic as the real one it is compared with: the replicate mean of
+    /// skill at the largest L (`skill_final_mean`).
     pub surrogate_skills: Option<Vec<f64>>,
     /// Facts about the two series, when the series themselves were seen (not for curves
     /// read from elsewhere).
     pub context: Option<PairContext>,
 }
 
-/// Which kind of evidence a feature needs; curve-only input has only [`FeatureGroup::Curve`]
-/// and [`FeatureGroup::Contrast`] (when the reverse direction is present).
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum FeatureGroup {
-    /// Computed from the forward ensemble alone.
-    Curve,
-    /// Needs the reverse ensemble.
-    Contrast,
-    /// Needs the lag profile.
-    Lag,
-    /// Needs surrogate skills.
-    Surrogate,
-    /// Needs the series themselves.
-    Context,
+impl PairEvidence {
+    /// Evidence from curves alone (e.g. a `curves.csv` written elsewhere): no lag profile,
+    /// surrogates or context.
+    pub fn curve_only(forward: Ensemble, reverse: Option<Ensemble>) -> Self {
+        PairEvidence {
+            forward,
+            reverse,
+            lag: None,
+            surrogate_skills: None,
+            context: None,
+        }
+    }
 }
 
-/// One column of the feature schema.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct FeatureDef {
-    /// Column name in `features.csv` (snake_case, stable).
-    pub name: &'static str,
-    /// One-line meaning.
-    pub meaning: &'static str,
-    /// Range of values, in words (e.g. "[-1, 1]").
-    pub range: &'static str,
-    /// Evidence the feature needs.
-    pub group: FeatureGroup,
-}
+#[cfg(test)]
+mod tests {
+    use super::*;
 
-/// Schema version; bump on any change of names, order or meaning.
-pub const SCHEMA_VERSION: u32 = 1;
+    fn ens(sizes: &[usize], reps: &[usize]) -> Ensemble {
+        Ensemble {
+            library_sizes: sizes.to_vec(),
+            skills: reps.iter().map(|&r| vec![0.5; r]).collect(),
+        }
+    }
 
-/// The feature schema, in column order.
-pub fn schema() -> &'static [FeatureDef] {
-    todo!("features work")
-}
+    #[test]
+    fn a_well_formed_ensemble_passes() {
+        assert_eq!(ens(&[10, 20, 40], &[3, 3, 3]).validate(), Ok(()));
+        assert_eq!(ens(&[10, 20], &[1, 1]).validate(), Ok(()));
+    }
 
-/// Stable hash (hex) of the schema's names, order, groups and version; model files record it.
-pub fn schema_hash() -> String {
-    todo!("features work")
-}
+    #[test]
+    fn each_shape_rule_has_its_own_error() {
+        assert_eq!(
+            ens(&[10], &[3]).validate(),
+            Err(FeatureError::TooFewSizes { found: 1 })
+        );
+        assert_eq!(
+            ens(&[10, 20], &[3]).validate(),
+            Err(FeatureError::ShapeMismatch { sizes: 2, rows: 1 })
+        );
+        assert_eq!(
+            ens(&[10, 10], &[3, 3]).validate(),
+            Err(FeatureError::SizesNotIncreasing {
+                index: 1,
+                previous: 10,
+                current: 10
+            })
+        );
+        assert_eq!(
+            ens(&[0, 10], &[3, 3]).validate(),
+            Err(FeatureError::ZeroLibrarySize { index: 0 })
+        );
+        assert_eq!(
+            ens(&[10, 20], &[0, 0]).validate(),
+            Err(FeatureError::NoReplicates { library_size: 10 })
+        );
+        assert_eq!(
+            ens(&[10, 20, 40], &[3, 3, 2]).validate(),
+            Err(FeatureError::UnequalReplicates {
+                library_size: 40,
+                expected: 3,
+                found: 2
+            })
+        );
+    }
 
-/// Feature values in schema order; `None` marks a feature unavailable for this input.
-pub fn compute(evidence: &PairEvidence) -> Vec<Option<f64>> {
-    let _ = evidence;
-    todo!("features work")
+    #[test]
+    fn error_messages_name_the_fix() {
+        let msg = ens(&[10, 20], &[3, 2]).validate().unwrap_err().to_string();
+        assert!(msg.contains("library size 20") && msg.contains("same number of replicates"));
+        let msg = ens(&[10], &[3]).validate().unwrap_err().to_string();
+        assert!(msg.contains("at least 2"));
+    }
+
+    #[test]
+    fn members_in_any_order_build_the_ensemble() {
+        let e =
+            Ensemble::from_members([(20, 1, 0.4), (10, 0, 0.1), (20, 0, 0.3), (10, 1, f64::NAN)])
+                .unwrap();
+        assert_eq!(e.library_sizes, vec![10, 20]);
+        assert_eq!(e.skills[1], vec![0.3, 0.4]);
+        assert!(e.skills[0][1].is_nan());
+        assert_eq!(
+            Ensemble::from_members([(10, 0, 0.1), (10, 0, 0.2), (20, 0, 0.3)]),
+            Err(FeatureError::DuplicateMember {
+                library_size: 10,
+                replicate: 0
+            })
+        );
+        assert_eq!(
+            Ensemble::from_members([(10, 0, 0.1), (10, 1, 0.2), (20, 0, 0.3)]),
+            Err(FeatureError::UnequalReplicates {
+                library_size: 20,
+                expected: 2,
+                found: 1
+            })
+        );
+        assert_eq!(
+            Ensemble::from_members([(10, 0, 0.1), (10, 1, 0.2)]),
+            Err(FeatureError::TooFewSizes { found: 1 })
+        );
+    }
+
+    #[test]
+    fn lag_profiles_are_checked() {
+        let bad = LagProfile {
+            lags: vec![0, -1],
+            skills: vec![0.1, 0.2],
+        };
+        assert!(matches!(
+            bad.validate(),
+            Err(FeatureError::LagsNotIncreasing { index: 1, .. })
+        ));
+        let short = LagProfile {
+            lags: vec![0, 1],
+            skills: vec![0.1],
+        };
+        assert_eq!(
+            short.validate(),
+            Err(FeatureError::LagShapeMismatch { lags: 2, skills: 1 })
+        );
+    }
+
+    #[test]
+    fn compute_is_lenient_where_try_compute_is_strict() {
+        let ev = PairEvidence::curve_only(ens(&[10, 20, 40], &[3, 3, 2]), None);
+        assert!(try_compute(&ev).is_err());
+        let row = compute(&ev);
+        assert_eq!(row[index_of("skill_final_mean").unwrap()], Some(0.5));
+    }
 }

@@ -1,0 +1,319 @@
+//! Assembles one schema-ordered feature row from a pair's evidence.
+
+use crate::schema::{FeatureGroup, index_of, schema};
+use crate::shape::{CurveShape, curve_shape};
+use crate::stats::{finite, mean, sd};
+use crate::{FeatureError, LagProfile, PairContext, PairEvidence};
+
+/// Clamp for surrogate z-scores: beyond it every pair is equally significant, and unclamped
+/// values explode when surrogate skills are nearly identical.
+const Z_CLAMP: f64 = 10.0;
+/// Floor of the simplex skill used as a denominator, so a near-unpredictable variable cannot
+/// blow the ratio up.
+const SIMPLEX_FLOOR: f64 = 0.05;
+/// Clamp of skill-over-simplex ratios.
+const RATIO_CLAMP: f64 = 5.0;
+
+/// The evidence groups present in `evidence`, in schema order. The forward curve is always
+/// present; a lag profile or surrogate list counts only when it holds at least one finite
+/// skill. Features outside these groups are `None` in [`compute`]'s row.
+pub fn available_groups(evidence: &PairEvidence) -> Vec<FeatureGroup> {
+    let mut groups = vec![FeatureGroup::Curve];
+    if evidence.reverse.is_some() {
+        groups.push(FeatureGroup::Contrast);
+    }
+    if evidence
+        .lag
+        .as_ref()
+        .is_some_and(|p| p.skills.iter().any(|s| s.is_finite()))
+    {
+        groups.push(FeatureGroup::Lag);
+    }
+    if evidence
+        .surrogate_skills
+        .as_ref()
+        .is_some_and(|s| s.iter().any(|v| v.is_finite()))
+    {
+        groups.push(FeatureGroup::Surrogate);
+    }
+    if evidence.context.is_some() {
+        groups.push(FeatureGroup::Context);
+    }
+    groups
+}
+
+/// Validates the evidence ([`crate::Ensemble::validate`] on both ensembles,
+/// [`LagProfile::validate`] on the lag profile), then computes the row as [`compute`] does.
+pub fn try_compute(evidence: &PairEvidence) -> Result<Vec<Option<f64>>, FeatureError> {
+    evidence.forward.validate()?;
+    if let Some(rev) = &evidence.reverse {
+        rev.validate()
+            .map_err(|e| FeatureError::Reverse(Box::new(e)))?;
+    }
+    if let Some(lag) = &evidence.lag {
+        lag.validate()?;
+    }
+    Ok(compute(evidence))
+}
+
+/// A row under construction, addressed by feature name.
+struct Row(Vec<Option<f64>>);
+
+impl Row {
+    fn set(&mut self, name: &str, value: Option<f64>) {
+        let i = index_of(name).unwrap_or_else(|| panic!("feature {name} is not in the schema"));
+        self.0[i] = value.filter(|v| v.is_finite());
+    }
+}
+
+/// Feature values in schema order; `None` marks a feature unavailable for this input.
+///
+/// Lenient: it computes whatever the data define without validating shapes (use
+/// [`try_compute`] to reject malformed ensembles with a typed error). All statistics ignore
+/// undefined (non-finite) replicate skills, and every feature is invariant to reordering the
+/// replicates within a library size except `rising_share`, which pairs replicates by index
+/// and is invariant to one common reordering of all sizes.
+pub fn compute(evidence: &PairEvidence) -> Vec<Option<f64>> {
+    let mut row = Row(vec![None; schema().len()]);
+    let fwd = curve_shape(&evidence.forward);
+    set_curve(&mut row, &fwd);
+    if let Some(rev) = &evidence.reverse {
+        set_contrast(&mut row, &fwd, &curve_shape(rev));
+    }
+    if let Some(lag) = &evidence.lag {
+        set_lag(&mut row, lag);
+    }
+    if let Some(surr) = &evidence.surrogate_skills {
+        set_surrogate(&mut row, fwd.final_mean, surr);
+    }
+    if let Some(ctx) = &evidence.context {
+        set_context(&mut row, fwd.final_mean, ctx);
+    }
+    row.0
+}
+
+fn set_curve(row: &mut Row, s: &CurveShape) {
+    let asym = s.fit_asymptote();
+    row.set("skill_final_mean", s.final_mean);
+    row.set("skill_final_median", s.final_median);
+    row.set("fit_asymptote", asym);
+    row.set("fit_headroom", asym.zip(s.final_mean).map(|(a, m)| a - m));
+    row.set("fit_r2", s.fit.and_then(|f| f.r_squared));
+    row.set("fit_rmse", s.fit.map(|f| f.rmse));
+    row.set("skill_gain", s.gain);
+    row.set("slope_early", s.slope_early);
+    row.set("slope_late", s.slope_late);
+    row.set("fit_log10_rate", s.fit_log10_rate());
+    row.set("overshoot", s.overshoot);
+    row.set("overshoot_position", s.overshoot_position);
+    row.set("spread_sd_small", s.sd_small);
+    row.set("spread_sd_mid", s.sd_mid);
+    row.set("spread_sd_large", s.sd_large);
+    row.set("spread_iqr_small", s.iqr_small);
+    row.set("spread_iqr_mid", s.iqr_mid);
+    row.set("spread_iqr_large", s.iqr_large);
+    row.set("spread_log_ratio", s.spread_log_ratio);
+    row.set("spread_decay_slope", s.spread_decay_slope);
+    row.set("gain_over_spread", s.gain_over_spread);
+    row.set("mk_z", s.mk_z);
+    row.set("kendall_tau", s.kendall_tau);
+    row.set("rising_share", s.rising_share);
+    row.set("nan_share", s.nan_share);
+    row.set("log10_size_max", s.log10_size_max);
+    row.set("log10_size_span", s.log10_size_span);
+}
+
+fn diff(a: Option<f64>, b: Option<f64>) -> Option<f64> {
+    a.zip(b).map(|(a, b)| a - b)
+}
+
+fn set_contrast(row: &mut Row, f: &CurveShape, r: &CurveShape) {
+    row.set("rev_skill_final_mean", r.final_mean);
+    row.set("rev_skill_final_median", r.final_median);
+    row.set("rev_fit_asymptote", r.fit_asymptote());
+    row.set("rev_skill_gain", r.gain);
+    row.set("rev_slope_early", r.slope_early);
+    row.set("rev_slope_late", r.slope_late);
+    row.set("rev_fit_log10_rate", r.fit_log10_rate());
+    row.set("rev_kendall_tau", r.kendall_tau);
+    row.set("diff_skill_final_mean", diff(f.final_mean, r.final_mean));
+    row.set(
+        "diff_skill_final_median",
+        diff(f.final_median, r.final_median),
+    );
+    row.set(
+        "diff_fit_asymptote",
+        diff(f.fit_asymptote(), r.fit_asymptote()),
+    );
+    row.set("diff_skill_gain", diff(f.gain, r.gain));
+    row.set("diff_slope_late", diff(f.slope_late, r.slope_late));
+    row.set("diff_kendall_tau", diff(f.kendall_tau, r.kendall_tau));
+}
+
+/// Best lag: the highest finite skill; ties go to the lag nearest zero, then to the negative
+/// one, because an unresolved tie should not suggest a delay the data do not show.
+fn set_lag(row: &mut Row, p: &LagProfile) {
+    let best = p
+        .lags
+        .iter()
+        .zip(&p.skills)
+        .filter(|(_, s)| s.is_finite())
+        .max_by(|a, b| {
+            a.1.total_cmp(b.1)
+                .then_with(|| b.0.abs().cmp(&a.0.abs()))
+                .then_with(|| b.0.cmp(a.0))
+        });
+    let Some((&lag, &skill)) = best else {
+        return;
+    };
+    let max_abs = p.lags.iter().map(|l| l.unsigned_abs()).max().unwrap_or(0);
+    let at_zero = p
+        .lags
+        .iter()
+        .zip(&p.skills)
+        .find(|(l, s)| **l == 0 && s.is_finite())
+        .map(|(_, s)| *s);
+    row.set("lag_best", Some(f64::from(lag)));
+    row.set(
+        "lag_best_scaled",
+        (max_abs > 0).then(|| f64::from(lag) / f64::from(max_abs)),
+    );
+    row.set("lag_best_skill", Some(skill));
+    row.set("lag_gap", at_zero.map(|z| skill - z));
+}
+
+fn set_surrogate(row: &mut Row, real: Option<f64>, surrogates: &[f64]) {
+    let s = finite(surrogates);
+    if s.is_empty() {
+        return;
+    }
+    row.set("surrogate_mean", mean(&s));
+    let Some(real) = real else {
+        return;
+    };
+    let n = s.len() as f64;
+    let below = s.iter().filter(|v| **v < real).count() as f64;
+    let ties = s.iter().filter(|v| **v == real).count() as f64;
+    let at_or_above = s.iter().filter(|v| **v >= real).count() as f64;
+    row.set("surrogate_percentile", Some((below + 0.5 * ties) / n));
+    // Permutation p-value with the +1 correction, so it is never exactly zero (common
+    // practice; Davison & Hinkley 1997, section 4.2, from memory).
+    row.set("surrogate_p", Some((1.0 + at_or_above) / (1.0 + n)));
+    let z = match (mean(&s), sd(&s)) {
+        (Some(m), Some(sdv)) if sdv > 0.0 => Some(((real - m) / sdv).clamp(-Z_CLAMP, Z_CLAMP)),
+        (Some(m), Some(_)) => Some(if real == m {
+            0.0
+        } else {
+            Z_CLAMP.copysign(real - m)
+        }),
+        _ => None,
+    };
+    row.set("surrogate_z", z);
+}
+
+fn set_context(row: &mut Row, real: Option<f64>, c: &PairContext) {
+    row.set(
+        "log10_n_points",
+        (c.n_points > 0).then(|| (c.n_points as f64).log10()),
+    );
+    row.set("e_driver", Some(c.e_driver as f64));
+    row.set("e_response", Some(c.e_response as f64));
+    row.set("tau_driver", Some(c.tau_driver as f64));
+    row.set("tau_response", Some(c.tau_response as f64));
+    row.set("simplex_driver", Some(c.simplex_driver));
+    row.set("simplex_response", Some(c.simplex_response));
+    let corr = c.correlation.is_finite().then_some(c.correlation);
+    row.set("correlation", corr);
+    row.set("abs_correlation", corr.map(f64::abs));
+    let ratio = |simplex: f64| {
+        real.filter(|_| simplex.is_finite())
+            .map(|r| (r / simplex.max(SIMPLEX_FLOOR)).clamp(-RATIO_CLAMP, RATIO_CLAMP))
+    };
+    row.set("skill_over_simplex_driver", ratio(c.simplex_driver));
+    row.set("skill_over_simplex_response", ratio(c.simplex_response));
+    row.set(
+        "skill_minus_abs_correlation",
+        real.zip(corr).map(|(r, c)| r - c.abs()),
+    );
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::Ensemble;
+
+    fn forward() -> Ensemble {
+        Ensemble {
+            library_sizes: vec![10, 20, 40, 80],
+            skills: vec![
+                vec![0.1, 0.2],
+                vec![0.3, 0.4],
+                vec![0.5, 0.6],
+                vec![0.5, 0.75],
+            ],
+        }
+    }
+
+    fn get(row: &[Option<f64>], name: &str) -> Option<f64> {
+        row[index_of(name).unwrap()]
+    }
+
+    #[test]
+    fn lag_ties_go_to_the_lag_nearest_zero_then_the_negative_one() {
+        let mut ev = PairEvidence::curve_only(forward(), None);
+        ev.lag = Some(LagProfile {
+            lags: vec![-2, -1, 0, 1, 2],
+            skills: vec![0.5, 0.7, 0.6, 0.7, 0.5],
+        });
+        let row = compute(&ev);
+        assert_eq!(get(&row, "lag_best"), Some(-1.0));
+        assert_eq!(get(&row, "lag_best_scaled"), Some(-0.5));
+        assert!((get(&row, "lag_gap").unwrap() - 0.1).abs() < 1e-12);
+    }
+
+    #[test]
+    fn an_all_undefined_lag_profile_is_a_missing_group() {
+        let mut ev = PairEvidence::curve_only(forward(), None);
+        ev.lag = Some(LagProfile {
+            lags: vec![-1, 0],
+            skills: vec![f64::NAN, f64::NAN],
+        });
+        assert!(!available_groups(&ev).contains(&FeatureGroup::Lag));
+        assert!(get(&compute(&ev), "lag_best").is_none());
+    }
+
+    #[test]
+    fn surrogate_ties_count_half_and_p_is_never_zero() {
+        let mut ev = PairEvidence::curve_only(forward(), None);
+        ev.surrogate_skills = Some(vec![0.0, 0.625, 0.9, f64::NAN]);
+        let row = compute(&ev);
+        // skill_final_mean is 0.625: one surrogate below, one tied, one above.
+        assert!((get(&row, "surrogate_percentile").unwrap() - 0.5).abs() < 1e-12);
+        assert!((get(&row, "surrogate_p").unwrap() - 3.0 / 4.0).abs() < 1e-12);
+        ev.surrogate_skills = Some(vec![0.1, 0.1, 0.1]);
+        let row = compute(&ev);
+        assert_eq!(get(&row, "surrogate_z"), Some(Z_CLAMP));
+        assert!((get(&row, "surrogate_p").unwrap() - 0.25).abs() < 1e-12);
+    }
+
+    #[test]
+    fn undefined_context_values_stay_missing() {
+        let mut ev = PairEvidence::curve_only(forward(), None);
+        ev.context = Some(PairContext {
+            n_points: 200,
+            e_driver: 2,
+            e_response: 2,
+            tau_driver: 1,
+            tau_response: 1,
+            simplex_driver: f64::NAN,
+            simplex_response: 0.01,
+            correlation: f64::NAN,
+        });
+        let row = compute(&ev);
+        assert!(get(&row, "correlation").is_none());
+        assert!(get(&row, "skill_minus_abs_correlation").is_none());
+        assert!(get(&row, "skill_over_simplex_driver").is_none());
+        // A near-unpredictable response is floored at 0.05 and the ratio clamped.
+        assert_eq!(get(&row, "skill_over_simplex_response"), Some(RATIO_CLAMP));
+    }
+}
