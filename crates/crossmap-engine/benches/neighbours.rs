@@ -3,12 +3,16 @@
 
 use criterion::{BenchmarkId, Criterion, criterion_group, criterion_main};
 use crossmap_engine::neighbours::{ExactScan, NeighbourIndex, SortedLists, walk_depth};
-use crossmap_engine::{CrossMapParams, Embedding, LibrarySizes, Manifold, cross_map_all, draw_library};
+use crossmap_engine::{
+    CrossMapParams, Embedding, LibrarySizes, Manifold, cross_map_all, draw_library,
+};
 use std::hint::black_box;
 
 /// Seeded coupled logistic network: variable i is driven by variable i-1 (chain), r = 3.7..3.9.
 fn chain(vars: usize, points: usize) -> Vec<Vec<f64>> {
-    let mut s: Vec<Vec<f64>> = (0..vars).map(|i| vec![0.2 + 0.6 * (i as f64 + 1.0) / (vars as f64 + 1.0)]).collect();
+    let mut s: Vec<Vec<f64>> = (0..vars)
+        .map(|i| vec![0.2 + 0.6 * (i as f64 + 1.0) / (vars as f64 + 1.0)])
+        .collect();
     for t in 0..points - 1 {
         for i in 0..vars {
             let r = 3.7 + 0.2 * (i as f64 / vars.max(2) as f64);
@@ -42,13 +46,21 @@ fn kernel(c: &mut Criterion) {
         }
     }
     g.finish();
-    c.bench_function("sorted_lists_build_1000pts_E3", |b| b.iter(|| black_box(SortedLists::new(&m, 2, walk_depth(n, 20, 3)))));
+    c.bench_function("sorted_lists_build_1000pts_E3", |b| {
+        b.iter(|| black_box(SortedLists::new(&m, 2, walk_depth(n, 20, 3))))
+    });
 }
 
 fn whole(c: &mut Criterion) {
     let series = chain(4, 1000);
     let emb: Vec<Embedding> = (0..4)
-        .map(|_| Embedding { e: 2, tau: 1, simplex_skill: 1.0, skill_by_e: vec![], vectors_excluded: 0 })
+        .map(|_| Embedding {
+            e: 2,
+            tau: 1,
+            simplex_skill: 1.0,
+            skill_by_e: vec![],
+            vectors_excluded: 0,
+        })
         .collect();
     let params = CrossMapParams::default()
         .with_library_sizes(LibrarySizes::Auto { count: 10 })
@@ -57,7 +69,9 @@ fn whole(c: &mut Criterion) {
         .unwrap();
     let mut g = c.benchmark_group("cross_map_all");
     g.sample_size(10);
-    g.bench_function("4vars_1000pts_10sizes_100reps", |b| b.iter(|| black_box(cross_map_all(&series, &emb, &params, &|_| {}))));
+    g.bench_function("4vars_1000pts_10sizes_100reps", |b| {
+        b.iter(|| black_box(cross_map_all(&series, &emb, &params, &|_| {})))
+    });
     g.finish();
 }
 

@@ -3,14 +3,19 @@
 //! `cargo run --release -p crossmap-engine --example throughput -- --vars 4 --points 1000
 //!  [--sizes 10] [--replicates 100] [--surrogates 0] [--choose-embedding] [--seed 1]`
 
-use crossmap_engine::{CrossMapParams, Embedding, EmbeddingSettings, LibrarySizes, choose_embedding, cross_map_all};
+use crossmap_engine::{
+    CrossMapParams, Embedding, EmbeddingSettings, LibrarySizes, choose_embedding, cross_map_all,
+};
 use std::time::Instant;
 
 fn arg(args: &[String], name: &str, default: usize) -> usize {
     args.iter()
         .position(|a| a == name)
         .and_then(|i| args.get(i + 1))
-        .map(|v| v.parse().unwrap_or_else(|_| panic!("{name} expects a whole number, got {v}")))
+        .map(|v| {
+            v.parse()
+                .unwrap_or_else(|_| panic!("{name} expects a whole number, got {v}"))
+        })
         .unwrap_or(default)
 }
 
@@ -48,9 +53,29 @@ fn main() {
     let series = chain(vars, points, seed);
     let start = Instant::now();
     let embeddings: Vec<Embedding> = if choose {
-        series.iter().map(|s| choose_embedding(s, &EmbeddingSettings { tau: Some(1), ..Default::default() }).unwrap()).collect()
+        series
+            .iter()
+            .map(|s| {
+                choose_embedding(
+                    s,
+                    &EmbeddingSettings {
+                        tau: Some(1),
+                        ..Default::default()
+                    },
+                )
+                .unwrap()
+            })
+            .collect()
     } else {
-        (0..vars).map(|_| Embedding { e: 2, tau: 1, simplex_skill: f64::NAN, skill_by_e: vec![], vectors_excluded: 0 }).collect()
+        (0..vars)
+            .map(|_| Embedding {
+                e: 2,
+                tau: 1,
+                simplex_skill: f64::NAN,
+                skill_by_e: vec![],
+                vectors_excluded: 0,
+            })
+            .collect()
     };
     let t_embed = start.elapsed();
     let params = CrossMapParams::default()
@@ -66,7 +91,11 @@ fn main() {
     println!(
         "workload: {vars} variables x {points} points, {} ordered pairs, {n_sizes} library sizes x {replicates} replicates, {surrogates} surrogates, E {}",
         pairs.len(),
-        if choose { "chosen by simplex (tau = 1)" } else { "= 2, tau = 1" }
+        if choose {
+            "chosen by simplex (tau = 1)"
+        } else {
+            "= 2, tau = 1"
+        }
     );
     println!(
         "threads: {}; embedding {:.3} s; total {:.3} s; {:.1} pairs/s",

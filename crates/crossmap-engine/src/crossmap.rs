@@ -6,7 +6,9 @@
 //! response's state records the driver's past.
 
 use crate::embed::{Embedding, Manifold};
-use crate::neighbours::{ExactScan, Library, Neighbour, NeighbourIndex, SortedLists, prefer_walk, walk_depth};
+use crate::neighbours::{
+    ExactScan, Library, Neighbour, NeighbourIndex, SortedLists, prefer_walk, walk_depth,
+};
 use crate::params::ValidParams;
 use crate::seeds::{TAG_LIBRARY, TAG_SURROGATE, keyed_rng, sample_without_replacement};
 use crate::stats::{finite_mean, pearson};
@@ -20,12 +22,18 @@ use rayon::prelude::*;
 /// on the neighbours at distance zero and none on the rest.
 pub fn simplex_weights(neighbours: &[Neighbour], out: &mut Vec<f64>) {
     out.clear();
-    let Some(first) = neighbours.first() else { return };
+    let Some(first) = neighbours.first() else {
+        return;
+    };
     let d1 = first.dist;
     if d1 > 0.0 {
         out.extend(neighbours.iter().map(|n| (-n.dist / d1).exp()));
     } else {
-        out.extend(neighbours.iter().map(|n| if n.dist == 0.0 { 1.0 } else { 0.0 }));
+        out.extend(
+            neighbours
+                .iter()
+                .map(|n| if n.dist == 0.0 { 1.0 } else { 0.0 }),
+        );
     }
     let s: f64 = out.iter().sum();
     out.iter_mut().for_each(|w| *w /= s);
@@ -59,9 +67,19 @@ pub(crate) struct Scratch {
 }
 
 impl Table {
-    pub(crate) fn build(index: &dyn NeighbourIndex, library: &Library, k: usize, s: &mut Scratch) -> Self {
+    pub(crate) fn build(
+        index: &dyn NeighbourIndex,
+        library: &Library,
+        k: usize,
+        s: &mut Scratch,
+    ) -> Self {
         let n = index.manifold().len();
-        let mut t = Table { k, pos: vec![0; n * k], weight: vec![0.0; n * k], full: vec![false; n] };
+        let mut t = Table {
+            k,
+            pos: vec![0; n * k],
+            weight: vec![0.0; n * k],
+            full: vec![false; n],
+        };
         for q in 0..n {
             index.nearest(q, library, k, &|_| true, &mut s.nb);
             if s.nb.len() == k {
@@ -95,7 +113,9 @@ impl Table {
             if !self.full[q] {
                 continue;
             }
-            let Some(obs) = target_at(target, m.time(q), lag) else { continue };
+            let Some(obs) = target_at(target, m.time(q), lag) else {
+                continue;
+            };
             let mut est = 0.0;
             let mut ok = true;
             for j in 0..k {
@@ -116,12 +136,13 @@ impl Table {
                     continue;
                 }
                 simplex_weights(&s.nb, &mut s.w);
-                est = s
-                    .nb
-                    .iter()
-                    .zip(&s.w)
-                    .map(|(nb, &w)| w * target_at(target, m.time(nb.pos as usize), lag).expect("accepted"))
-                    .sum();
+                est =
+                    s.nb.iter()
+                        .zip(&s.w)
+                        .map(|(nb, &w)| {
+                            w * target_at(target, m.time(nb.pos as usize), lag).expect("accepted")
+                        })
+                        .sum();
             }
             if let Some(pq) = per_query.as_deref_mut() {
                 pq[q] = est;
@@ -131,7 +152,14 @@ impl Table {
         }
     }
 
-    pub(crate) fn skill(&self, index: &dyn NeighbourIndex, library: &Library, target: &[f64], lag: i32, s: &mut Scratch) -> f64 {
+    pub(crate) fn skill(
+        &self,
+        index: &dyn NeighbourIndex,
+        library: &Library,
+        target: &[f64],
+        lag: i32,
+        s: &mut Scratch,
+    ) -> f64 {
         self.estimate(index, library, target, lag, s, None);
         pearson(&s.est, &s.obs)
     }
@@ -161,15 +189,28 @@ pub fn cross_map_with_library(
     lag: i32,
 ) -> Result<CrossMapEstimate, EngineError> {
     if response.len() != driver.len() {
-        return Err(EngineError::LengthMismatch { expected: response.len(), found: driver.len() });
+        return Err(EngineError::LengthMismatch {
+            expected: response.len(),
+            found: driver.len(),
+        });
     }
     let m = Manifold::new(response, e, tau)?;
     let positions = library_times
         .iter()
-        .map(|&t| m.position(t).map(|p| p as u32).ok_or(EngineError::LibraryTimeInvalid { time: t }))
+        .map(|&t| {
+            m.position(t)
+                .map(|p| p as u32)
+                .ok_or(EngineError::LibraryTimeInvalid { time: t })
+        })
         .collect::<Result<Vec<u32>, _>>()?;
     let library = Library::from_positions(positions, m.len());
-    Ok(estimate_with(&m, &library, &ExactScan::new(&m, theiler), driver, lag))
+    Ok(estimate_with(
+        &m,
+        &library,
+        &ExactScan::new(&m, theiler),
+        driver,
+        lag,
+    ))
 }
 
 pub(crate) fn estimate_with(
@@ -187,13 +228,29 @@ pub(crate) fn estimate_with(
     for (p, v) in by_pos.into_iter().enumerate() {
         estimates[m.time(p)] = v;
     }
-    CrossMapEstimate { estimates, skill: pearson(&s.est, &s.obs), predicted: s.est.len() }
+    CrossMapEstimate {
+        estimates,
+        skill: pearson(&s.est, &s.obs),
+        predicted: s.est.len(),
+    }
 }
 
 /// The random library for (seed, response, size, replicate): `size` positions drawn without
 /// replacement. Keyed by the size's value (not its index), so adding sizes leaves others intact.
-pub fn draw_library(seed: u64, response: usize, size: usize, replicate: usize, n: usize) -> Library {
-    let mut rng = keyed_rng(&[TAG_LIBRARY, seed, response as u64, size as u64, replicate as u64]);
+pub fn draw_library(
+    seed: u64,
+    response: usize,
+    size: usize,
+    replicate: usize,
+    n: usize,
+) -> Library {
+    let mut rng = keyed_rng(&[
+        TAG_LIBRARY,
+        seed,
+        response as u64,
+        size as u64,
+        replicate as u64,
+    ]);
     Library::from_positions(sample_without_replacement(&mut rng, n, size), n)
 }
 
@@ -214,8 +271,15 @@ pub fn cross_map_response(
     params: &ValidParams,
 ) -> Vec<PairEnsemble> {
     assert_eq!(series.len(), embeddings.len(), "one embedding per series");
-    assert_eq!(params.plans.len(), series.len(), "params validated for another set of series");
-    assert!(series.iter().all(|s| s.len() == params.n_points), "series length differs from the validated one");
+    assert_eq!(
+        params.plans.len(),
+        series.len(),
+        "params validated for another set of series"
+    );
+    assert!(
+        series.iter().all(|s| s.len() == params.n_points),
+        "series length differs from the validated one"
+    );
     let plan = &params.plans[response];
     let raw = &params.raw;
     let emb = &embeddings[response];
@@ -225,7 +289,11 @@ pub fn cross_map_response(
     let sizes = &plan.library_sizes;
     let drivers: Vec<usize> = (0..series.len()).filter(|&d| d != response).collect();
 
-    let walk_min = sizes.iter().copied().filter(|&l| prefer_walk(n, l, emb.e)).min();
+    let walk_min = sizes
+        .iter()
+        .copied()
+        .filter(|&l| prefer_walk(n, l, emb.e))
+        .min();
     let lists = walk_min.map(|l| SortedLists::new(&m, plan.theiler, walk_depth(n, l, emb.e)));
     let scan = ExactScan::new(&m, plan.theiler);
     let index_for = |l: usize| -> &dyn NeighbourIndex {
@@ -238,8 +306,9 @@ pub fn cross_map_response(
 
     // Every size but the largest: skill at lag 0 for each driver.
     let last = sizes.len() - 1;
-    let units: Vec<(usize, usize)> =
-        (0..last).flat_map(|li| (0..distinct_reps(sizes[li])).map(move |r| (li, r))).collect();
+    let units: Vec<(usize, usize)> = (0..last)
+        .flat_map(|li| (0..distinct_reps(sizes[li])).map(move |r| (li, r)))
+        .collect();
     let unit_skills: Vec<Vec<f64>> = units
         .par_iter()
         .map_init(Scratch::default, |s, &(li, r)| {
@@ -247,7 +316,10 @@ pub fn cross_map_response(
             let lib = draw_library(raw.seed, response, l, r, n);
             let index = index_for(l);
             let table = Table::build(index, &lib, k, s);
-            drivers.iter().map(|&d| table.skill(index, &lib, &series[d], 0, s)).collect()
+            drivers
+                .iter()
+                .map(|&d| table.skill(index, &lib, &series[d], 0, s))
+                .collect()
         })
         .collect();
 
@@ -269,7 +341,9 @@ pub fn cross_map_response(
         .into_par_iter()
         .map_init(Scratch::default, |s, u| {
             let (d, (lib, table)) = (drivers[u / tables.len()], &tables[u % tables.len()]);
-            lags.iter().map(|&lag| table.skill(index, lib, &series[d], lag, s)).collect()
+            lags.iter()
+                .map(|&lag| table.skill(index, lib, &series[d], lag, s))
+                .collect()
         })
         .collect();
     let surrogate_skills: Vec<f64> = if raw.surrogates == 0 {
@@ -280,13 +354,16 @@ pub fn cross_map_response(
             .into_par_iter()
             .map_init(Scratch::default, |s, u| {
                 let (d, j) = (drivers[u / raw.surrogates], u % raw.surrogates);
-                let mut rng = keyed_rng(&[TAG_SURROGATE, raw.seed, d as u64, response as u64, j as u64]);
+                let mut rng =
+                    keyed_rng(&[TAG_SURROGATE, raw.seed, d as u64, response as u64, j as u64]);
                 let surrogate = match raw.period {
                     Some(p) => maker.seasonal(&series[d], p, &mut rng),
                     None => maker.phase_randomised(&series[d], &mut rng),
                 };
-                let per_table: Vec<f64> =
-                    tables.iter().map(|(lib, table)| table.skill(index, lib, &surrogate, 0, s)).collect();
+                let per_table: Vec<f64> = tables
+                    .iter()
+                    .map(|(lib, table)| table.skill(index, lib, &surrogate, 0, s))
+                    .collect();
                 finite_mean(&per_table)
             })
             .collect()
@@ -309,7 +386,11 @@ pub fn cross_map_response(
                 skills.push(row);
             }
             let per_table = &lag_by_table[di * tables.len()..(di + 1) * tables.len()];
-            skills.push((0..raw.replicates).map(|r| per_table[r % per_table.len()][zero_lag]).collect());
+            skills.push(
+                (0..raw.replicates)
+                    .map(|r| per_table[r % per_table.len()][zero_lag])
+                    .collect(),
+            );
             let lag_skills = (0..lags.len())
                 .map(|li| finite_mean(&per_table.iter().map(|row| row[li]).collect::<Vec<_>>()))
                 .collect();
@@ -356,7 +437,13 @@ mod tests {
     use approx::assert_abs_diff_eq;
 
     fn nb(d: &[f64]) -> Vec<Neighbour> {
-        d.iter().enumerate().map(|(i, &dist)| Neighbour { pos: i as u32, dist }).collect()
+        d.iter()
+            .enumerate()
+            .map(|(i, &dist)| Neighbour {
+                pos: i as u32,
+                dist,
+            })
+            .collect()
     }
 
     #[test]
@@ -385,7 +472,13 @@ mod tests {
         x[300] = f64::NAN;
         let series = vec![x, y];
         let emb: Vec<Embedding> = (0..2)
-            .map(|_| Embedding { e: 3, tau: 1, simplex_skill: 1.0, skill_by_e: vec![], vectors_excluded: 3 })
+            .map(|_| Embedding {
+                e: 3,
+                tau: 1,
+                simplex_skill: 1.0,
+                skill_by_e: vec![],
+                vectors_excluded: 3,
+            })
             .collect();
         let params = CrossMapParams::default()
             .with_library_sizes(LibrarySizes::Explicit(vec![5, 30, 200, 595]))
@@ -400,11 +493,19 @@ mod tests {
             for r in 0..3 {
                 let lib = draw_library(0, 1, l, if l >= m.len() { 0 } else { r }, m.len());
                 let want = estimate_with(&m, &lib, &scan, &series[0], 0).skill;
-                assert_eq!(out[0].skills[li][r].to_bits(), want.to_bits(), "L={l} r={r}");
+                assert_eq!(
+                    out[0].skills[li][r].to_bits(),
+                    want.to_bits(),
+                    "L={l} r={r}"
+                );
             }
         }
         assert_eq!(out[0].lags.len(), out[0].lag_skills.len());
         let zero = out[0].lags.iter().position(|&l| l == 0).unwrap();
-        assert_abs_diff_eq!(out[0].lag_skills[zero], out[0].skills[3][0], epsilon = 1e-15);
+        assert_abs_diff_eq!(
+            out[0].lag_skills[zero],
+            out[0].skills[3][0],
+            epsilon = 1e-15
+        );
     }
 }

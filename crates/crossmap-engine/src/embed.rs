@@ -29,7 +29,12 @@ pub struct EmbeddingSettings {
 
 impl Default for EmbeddingSettings {
     fn default() -> Self {
-        Self { e: None, tau: None, max_e: DEFAULT_MAX_E, theiler: None }
+        Self {
+            e: None,
+            tau: None,
+            max_e: DEFAULT_MAX_E,
+            theiler: None,
+        }
     }
 }
 
@@ -102,7 +107,14 @@ impl Manifold {
                 coords.extend((0..e).map(|j| x[t - j * tau]));
             }
         }
-        Ok(Self { e, tau, series_len: x.len(), times, coords, position_of_time })
+        Ok(Self {
+            e,
+            tau,
+            series_len: x.len(),
+            times,
+            coords,
+            position_of_time,
+        })
     }
 
     /// Embedding dimension.
@@ -231,7 +243,9 @@ pub fn choose_embedding(x: &[f64], settings: &EmbeddingSettings) -> Result<Embed
         return Err(EngineError::MaxDimensionZero);
     }
     let max_e = settings.max_e.max(settings.e.unwrap_or(0));
-    let tau = settings.tau.unwrap_or_else(|| choose_tau(x, auto_tau_bound(x.len(), max_e)));
+    let tau = settings
+        .tau
+        .unwrap_or_else(|| choose_tau(x, auto_tau_bound(x.len(), max_e)));
     let candidates: Vec<usize> = match settings.e {
         Some(e) => vec![e],
         None => (1..=max_e).collect(),
@@ -240,7 +254,15 @@ pub fn choose_embedding(x: &[f64], settings: &EmbeddingSettings) -> Result<Embed
     let mut first_err = None;
     let results: Vec<_> = candidates
         .par_iter()
-        .map(|&e| simplex_forecast(x, e, tau, 1, settings.theiler.unwrap_or_else(|| default_theiler(e, tau))))
+        .map(|&e| {
+            simplex_forecast(
+                x,
+                e,
+                tau,
+                1,
+                settings.theiler.unwrap_or_else(|| default_theiler(e, tau)),
+            )
+        })
         .collect();
     for (&e, r) in candidates.iter().zip(results) {
         match r {
@@ -250,7 +272,11 @@ pub fn choose_embedding(x: &[f64], settings: &EmbeddingSettings) -> Result<Embed
             }
         }
     }
-    let best = skill_by_e.iter().copied().filter(|s| s.is_finite()).fold(f64::NAN, f64::max);
+    let best = skill_by_e
+        .iter()
+        .copied()
+        .filter(|s| s.is_finite())
+        .fold(f64::NAN, f64::max);
     if !best.is_finite() {
         return Err(first_err.unwrap_or(EngineError::NoForecastSkill));
     }
@@ -292,7 +318,9 @@ mod tests {
         // For cos, the autocorrelation at lag k is cos(2 pi k / P); it first drops below 1/e at
         // k/P = acos(1/e) / (2 pi) = 0.190 (analytic).
         let p = 100.0;
-        let x: Vec<f64> = (0..2000).map(|t| (2.0 * std::f64::consts::PI * t as f64 / p).sin()).collect();
+        let x: Vec<f64> = (0..2000)
+            .map(|t| (2.0 * std::f64::consts::PI * t as f64 / p).sin())
+            .collect();
         let tau = choose_tau(&x, 50);
         assert!((18..=21).contains(&tau), "tau = {tau}");
     }
@@ -300,9 +328,21 @@ mod tests {
     #[test]
     fn settings_zero_are_rejected() {
         let x = vec![1.0; 10];
-        let s = EmbeddingSettings { e: Some(0), ..Default::default() };
-        assert!(matches!(choose_embedding(&x, &s), Err(EngineError::EmbeddingDimensionZero)));
-        let s = EmbeddingSettings { tau: Some(0), ..Default::default() };
-        assert!(matches!(choose_embedding(&x, &s), Err(EngineError::DelayZero)));
+        let s = EmbeddingSettings {
+            e: Some(0),
+            ..Default::default()
+        };
+        assert!(matches!(
+            choose_embedding(&x, &s),
+            Err(EngineError::EmbeddingDimensionZero)
+        ));
+        let s = EmbeddingSettings {
+            tau: Some(0),
+            ..Default::default()
+        };
+        assert!(matches!(
+            choose_embedding(&x, &s),
+            Err(EngineError::DelayZero)
+        ));
     }
 }

@@ -53,14 +53,17 @@ mod simplex;
 mod stats;
 pub mod surrogate;
 
-pub use crossmap::{CrossMapEstimate, cross_map_all, cross_map_response, cross_map_with_library, draw_library, simplex_weights};
+pub use crossmap::{
+    CrossMapEstimate, cross_map_all, cross_map_response, cross_map_with_library, draw_library,
+    simplex_weights,
+};
 pub use embed::{
-    DEFAULT_MAX_E, Embedding, EmbeddingSettings, MAX_AUTO_TAU, Manifold, PARSIMONY_TOLERANCE, auto_tau_bound,
-    choose_embedding, choose_tau, default_theiler,
+    DEFAULT_MAX_E, Embedding, EmbeddingSettings, MAX_AUTO_TAU, Manifold, PARSIMONY_TOLERANCE,
+    auto_tau_bound, choose_embedding, choose_tau, default_theiler,
 };
 pub use params::{
-    CrossMapParams, DEFAULT_LIBRARY_COUNT, DEFAULT_REPLICATES, LibrarySizes, MAX_AUTO_LAG, ResponsePlan, ValidParams,
-    default_max_lag, log_spaced,
+    CrossMapParams, DEFAULT_LIBRARY_COUNT, DEFAULT_REPLICATES, LibrarySizes, MAX_AUTO_LAG,
+    ResponsePlan, ValidParams, default_max_lag, log_spaced,
 };
 pub use simplex::{Forecast, simplex_forecast};
 pub use stats::pearson;
@@ -90,22 +93,32 @@ pub struct PairEnsemble {
 #[non_exhaustive]
 pub enum EngineError {
     /// An embedding dimension of zero was requested.
-    #[error("embedding dimension E must be at least 1; set E to 1 or more (or leave it unset to choose by simplex projection)")]
+    #[error(
+        "embedding dimension E must be at least 1; set E to 1 or more (or leave it unset to choose by simplex projection)"
+    )]
     EmbeddingDimensionZero,
     /// A delay of zero was requested.
-    #[error("delay tau must be at least 1 time step; set tau to 1 or more (or leave it unset to choose automatically)")]
+    #[error(
+        "delay tau must be at least 1 time step; set tau to 1 or more (or leave it unset to choose automatically)"
+    )]
     DelayZero,
     /// The largest E to try by simplex projection is zero.
-    #[error("the largest embedding dimension to try (max E) must be at least 1; set it to 1 or more, e.g. 10")]
+    #[error(
+        "the largest embedding dimension to try (max E) must be at least 1; set it to 1 or more, e.g. 10"
+    )]
     MaxDimensionZero,
     /// Zero replicate libraries per size.
     #[error("replicates must be at least 1; set replicates to 1 or more (default 100)")]
     ReplicatesZero,
     /// No library sizes requested.
-    #[error("library sizes: at least one size is needed; give one or more sizes or an automatic count of 1 or more (default 12)")]
+    #[error(
+        "library sizes: at least one size is needed; give one or more sizes or an automatic count of 1 or more (default 12)"
+    )]
     LibraryCountZero,
     /// An explicit library size lies outside `[E+2, usable length]`.
-    #[error("library size {size} for variable {variable} lies outside [{min}, {max}] (E+2 to the usable length); choose library sizes within that range")]
+    #[error(
+        "library size {size} for variable {variable} lies outside [{min}, {max}] (E+2 to the usable length); choose library sizes within that range"
+    )]
     LibrarySizeOutOfRange {
         /// Variable (response) index.
         variable: usize,
@@ -131,7 +144,9 @@ pub enum EngineError {
         tau: usize,
     },
     /// The largest cross-map lag leaves too few predictable points.
-    #[error("max cross-map lag {max_lag} for variable {variable} must be below half its usable length {usable}; choose a smaller max lag")]
+    #[error(
+        "max cross-map lag {max_lag} for variable {variable} must be below half its usable length {usable}; choose a smaller max lag"
+    )]
     LagTooLarge {
         /// Variable index.
         variable: usize,
@@ -141,13 +156,17 @@ pub enum EngineError {
         usable: usize,
     },
     /// Fewer than two series to pair.
-    #[error("cross mapping needs at least two series, found {found}; supply two or more series columns")]
+    #[error(
+        "cross mapping needs at least two series, found {found}; supply two or more series columns"
+    )]
     TooFewSeries {
         /// Series found.
         found: usize,
     },
     /// A seasonal period below two steps.
-    #[error("seasonal period {period} must be at least 2 time steps; give the period in time steps or leave it unset for phase-randomised surrogates")]
+    #[error(
+        "seasonal period {period} must be at least 2 time steps; give the period in time steps or leave it unset for phase-randomised surrogates"
+    )]
     PeriodTooShort {
         /// Requested period.
         period: usize,
@@ -161,12 +180,16 @@ pub enum EngineError {
         found: usize,
     },
     /// An explicit library time has no valid delay vector.
-    #[error("library time {time} has no valid delay vector (too early for the embedding, or it touches a missing value); choose library times with complete delay vectors")]
+    #[error(
+        "library time {time} has no valid delay vector (too early for the embedding, or it touches a missing value); choose library times with complete delay vectors"
+    )]
     LibraryTimeInvalid {
         /// Offending time index.
         time: usize,
     },
     /// No E gave a finite forecast skill (e.g. a constant series).
-    #[error("simplex projection gave no finite forecast skill for any E (is the series constant?); fix E and tau explicitly or check the series")]
+    #[error(
+        "simplex projection gave no finite forecast skill for any E (is the series constant?); fix E and tau explicitly or check the series"
+    )]
     NoForecastSkill,
 }

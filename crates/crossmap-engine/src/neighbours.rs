@@ -34,10 +34,16 @@ impl Library {
         positions.dedup();
         let mut mask = vec![0u64; n.div_ceil(64)];
         for &p in &positions {
-            assert!((p as usize) < n, "library position {p} outside manifold of {n}");
+            assert!(
+                (p as usize) < n,
+                "library position {p} outside manifold of {n}"
+            );
             mask[p as usize / 64] |= 1 << (p % 64);
         }
-        Self { members: positions, mask }
+        Self {
+            members: positions,
+            mask,
+        }
     }
 
     /// Every position of a manifold of `n` positions.
@@ -169,7 +175,10 @@ fn scan_into(
             offer(&mut best, k, d2, p);
         }
     }
-    out.extend(best.iter().map(|&(d2, p)| Neighbour { pos: p, dist: d2.sqrt() }));
+    out.extend(best.iter().map(|&(d2, p)| Neighbour {
+        pos: p,
+        dist: d2.sqrt(),
+    }));
 }
 
 impl NeighbourIndex for ExactScan<'_> {
@@ -189,7 +198,15 @@ impl NeighbourIndex for ExactScan<'_> {
         accept: &dyn Fn(usize) -> bool,
         out: &mut Vec<Neighbour>,
     ) {
-        scan_into(self.manifold, self.theiler, q, library.members(), k, accept, out);
+        scan_into(
+            self.manifold,
+            self.theiler,
+            q,
+            library.members(),
+            k,
+            accept,
+            out,
+        );
     }
 }
 
@@ -226,7 +243,8 @@ impl<'m> SortedLists<'m> {
                         scratch.push((sq_dist(qp, manifold.point(p)), p as u32));
                     }
                 }
-                let cmp = |a: &(f64, u32), b: &(f64, u32)| a.partial_cmp(b).expect("finite distances");
+                let cmp =
+                    |a: &(f64, u32), b: &(f64, u32)| a.partial_cmp(b).expect("finite distances");
                 let keep = depth.min(scratch.len());
                 if keep > 0 && keep < scratch.len() {
                     scratch.select_nth_unstable_by(keep - 1, cmp);
@@ -238,7 +256,13 @@ impl<'m> SortedLists<'m> {
                 keep as u32
             })
             .collect();
-        Self { manifold, theiler, depth, lens, lists }
+        Self {
+            manifold,
+            theiler,
+            depth,
+            lens,
+            lists,
+        }
     }
 
     /// List depth per query.
@@ -286,7 +310,15 @@ impl NeighbourIndex for SortedLists<'_> {
             }
         }
         if !self.complete(q) {
-            scan_into(self.manifold, self.theiler, q, library.members(), k, accept, out);
+            scan_into(
+                self.manifold,
+                self.theiler,
+                q,
+                library.members(),
+                k,
+                accept,
+                out,
+            );
         }
     }
 }
@@ -326,7 +358,10 @@ mod tests {
             let lists = SortedLists::new(&m, w, 12);
             for (rep, l) in [(0u64, 5usize), (1, 40), (2, m.len())] {
                 let mut rng = keyed_rng(&[rep]);
-                let lib = Library::from_positions(sample_without_replacement(&mut rng, m.len(), l), m.len());
+                let lib = Library::from_positions(
+                    sample_without_replacement(&mut rng, m.len(), l),
+                    m.len(),
+                );
                 let accept = |p: usize| p % 7 != 3;
                 let (mut a, mut b) = (Vec::new(), Vec::new());
                 for q in 0..m.len() {

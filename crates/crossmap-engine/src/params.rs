@@ -44,7 +44,9 @@ pub struct CrossMapParams {
 impl Default for CrossMapParams {
     fn default() -> Self {
         Self {
-            library_sizes: LibrarySizes::Auto { count: DEFAULT_LIBRARY_COUNT },
+            library_sizes: LibrarySizes::Auto {
+                count: DEFAULT_LIBRARY_COUNT,
+            },
             replicates: DEFAULT_REPLICATES,
             theiler: None,
             max_lag: None,
@@ -113,7 +115,11 @@ impl CrossMapParams {
     }
 
     /// Check once against the series length and embeddings; one error variant per rule.
-    pub fn validate(&self, n_points: usize, embeddings: &[Embedding]) -> Result<ValidParams, EngineError> {
+    pub fn validate(
+        &self,
+        n_points: usize,
+        embeddings: &[Embedding],
+    ) -> Result<ValidParams, EngineError> {
         if self.replicates == 0 {
             return Err(EngineError::ReplicatesZero);
         }
@@ -123,7 +129,9 @@ impl CrossMapParams {
             _ => {}
         }
         if embeddings.len() < 2 {
-            return Err(EngineError::TooFewSeries { found: embeddings.len() });
+            return Err(EngineError::TooFewSeries {
+                found: embeddings.len(),
+            });
         }
         if let Some(p) = self.period
             && p < 2
@@ -138,7 +146,9 @@ impl CrossMapParams {
             if emb.tau == 0 {
                 return Err(EngineError::DelayZero);
             }
-            let theiler = self.theiler.unwrap_or_else(|| default_theiler(emb.e, emb.tau));
+            let theiler = self
+                .theiler
+                .unwrap_or_else(|| default_theiler(emb.e, emb.tau));
             let usable = n_points
                 .saturating_sub((emb.e - 1) * emb.tau)
                 .saturating_sub(emb.vectors_excluded);
@@ -161,7 +171,12 @@ impl CrossMapParams {
                     v.sort_unstable();
                     v.dedup();
                     if let Some(&size) = v.iter().find(|&&s| s < min || s > usable) {
-                        return Err(EngineError::LibrarySizeOutOfRange { variable: i, size, min, max: usable });
+                        return Err(EngineError::LibrarySizeOutOfRange {
+                            variable: i,
+                            size,
+                            min,
+                            max: usable,
+                        });
                     }
                     v
                 }
@@ -169,22 +184,35 @@ impl CrossMapParams {
             let max_lag = match self.max_lag {
                 Some(k) => {
                     if 2 * k >= usable {
-                        return Err(EngineError::LagTooLarge { variable: i, max_lag: k, usable });
+                        return Err(EngineError::LagTooLarge {
+                            variable: i,
+                            max_lag: k,
+                            usable,
+                        });
                     }
                     k
                 }
                 None => default_max_lag(emb.e, emb.tau, usable),
             };
-            plans.push(ResponsePlan { usable, library_sizes, theiler, max_lag });
+            plans.push(ResponsePlan {
+                usable,
+                library_sizes,
+                theiler,
+                max_lag,
+            });
         }
-        Ok(ValidParams { raw: self.clone(), n_points, plans })
+        Ok(ValidParams {
+            raw: self.clone(),
+            n_points,
+            plans,
+        })
     }
 }
 
 /// Default largest cross-map lag: `max(E tau, 3)`, at most [`MAX_AUTO_LAG`] and below a quarter
 /// of the usable length (so most points stay predictable at every lag).
 pub fn default_max_lag(e: usize, tau: usize, usable: usize) -> usize {
-    (e * tau).max(3).min(MAX_AUTO_LAG).min(usable / 4)
+    (e * tau).clamp(3, MAX_AUTO_LAG).min(usable / 4)
 }
 
 /// `count` sizes log-spaced from `min` to `max` inclusive, rounded and deduplicated.
@@ -206,12 +234,20 @@ mod tests {
     use super::*;
 
     fn emb(e: usize, tau: usize) -> Embedding {
-        Embedding { e, tau, simplex_skill: 0.9, skill_by_e: vec![], vectors_excluded: 0 }
+        Embedding {
+            e,
+            tau,
+            simplex_skill: 0.9,
+            skill_by_e: vec![],
+            vectors_excluded: 0,
+        }
     }
 
     #[test]
     fn auto_sizes_run_from_e_plus_2_to_the_usable_length() {
-        let v = CrossMapParams::default().validate(1000, &[emb(2, 1), emb(3, 2)]).unwrap();
+        let v = CrossMapParams::default()
+            .validate(1000, &[emb(2, 1), emb(3, 2)])
+            .unwrap();
         assert_eq!(v.plans[0].library_sizes.first(), Some(&4));
         assert_eq!(v.plans[0].library_sizes.last(), Some(&999));
         assert_eq!(v.plans[1].library_sizes.last(), Some(&996));
@@ -224,19 +260,50 @@ mod tests {
         let e2 = [emb(2, 1), emb(2, 1)];
         let p = CrossMapParams::default();
         let err = p.clone().with_replicates(0).validate(100, &e2).unwrap_err();
-        assert!(matches!(err, EngineError::ReplicatesZero) && err.to_string().contains("replicates"));
+        assert!(
+            matches!(err, EngineError::ReplicatesZero) && err.to_string().contains("replicates")
+        );
         let err = p.validate(100, &[emb(0, 1), emb(2, 1)]).unwrap_err();
         assert!(matches!(err, EngineError::EmbeddingDimensionZero));
         let err = p.validate(100, &[emb(2, 0), emb(2, 1)]).unwrap_err();
         assert!(matches!(err, EngineError::DelayZero));
-        let err = p.clone().with_library_sizes(LibrarySizes::Explicit(vec![3, 50])).validate(100, &e2).unwrap_err();
-        assert!(matches!(err, EngineError::LibrarySizeOutOfRange { size: 3, min: 4, max: 99, .. }));
-        let err = p.clone().with_library_sizes(LibrarySizes::Explicit(vec![100])).validate(100, &e2).unwrap_err();
-        assert!(matches!(err, EngineError::LibrarySizeOutOfRange { size: 100, .. }));
+        let err = p
+            .clone()
+            .with_library_sizes(LibrarySizes::Explicit(vec![3, 50]))
+            .validate(100, &e2)
+            .unwrap_err();
+        assert!(matches!(
+            err,
+            EngineError::LibrarySizeOutOfRange {
+                size: 3,
+                min: 4,
+                max: 99,
+                ..
+            }
+        ));
+        let err = p
+            .clone()
+            .with_library_sizes(LibrarySizes::Explicit(vec![100]))
+            .validate(100, &e2)
+            .unwrap_err();
+        assert!(matches!(
+            err,
+            EngineError::LibrarySizeOutOfRange { size: 100, .. }
+        ));
         let err = p.validate(6, &[emb(3, 2), emb(2, 1)]).unwrap_err();
-        assert!(matches!(err, EngineError::SeriesTooShort { variable: Some(0), .. }));
+        assert!(matches!(
+            err,
+            EngineError::SeriesTooShort {
+                variable: Some(0),
+                ..
+            }
+        ));
         assert!(err.to_string().contains("longer series"));
-        let err = p.clone().with_max_lag(Some(50)).validate(100, &e2).unwrap_err();
+        let err = p
+            .clone()
+            .with_max_lag(Some(50))
+            .validate(100, &e2)
+            .unwrap_err();
         assert!(matches!(err, EngineError::LagTooLarge { .. }));
         let err = p.validate(100, &e2[..1]).unwrap_err();
         assert!(matches!(err, EngineError::TooFewSeries { found: 1 }));

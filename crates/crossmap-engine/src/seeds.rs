@@ -67,7 +67,10 @@ mod tests {
     fn same_key_same_stream_different_key_different_stream() {
         let a: Vec<u64> = (0..4).map(|_| keyed_rng(&[1, 2, 3]).next_u64()).collect();
         assert!(a.windows(2).all(|w| w[0] == w[1]));
-        assert_ne!(keyed_rng(&[1, 2, 3]).next_u64(), keyed_rng(&[1, 3, 2]).next_u64());
+        assert_ne!(
+            keyed_rng(&[1, 2, 3]).next_u64(),
+            keyed_rng(&[1, 3, 2]).next_u64()
+        );
     }
 
     #[test]
@@ -77,7 +80,10 @@ mod tests {
         assert_eq!(s.len(), 20);
         assert!(s.windows(2).all(|w| w[0] < w[1]));
         assert!(s.iter().all(|&v| v < 50));
-        assert_eq!(sample_without_replacement(&mut rng, 9, 9), (0..9).collect::<Vec<_>>());
+        assert_eq!(
+            sample_without_replacement(&mut rng, 9, 9),
+            (0..9).collect::<Vec<_>>()
+        );
     }
 
     #[test]
@@ -88,6 +94,9 @@ mod tests {
         for _ in 0..60_000 {
             counts[below(&mut rng, 6) as usize] += 1;
         }
-        assert!(counts.iter().all(|&c| (9_500..10_500).contains(&c)), "{counts:?}");
+        assert!(
+            counts.iter().all(|&c| (9_500..10_500).contains(&c)),
+            "{counts:?}"
+        );
     }
 }

@@ -20,13 +20,35 @@ pub struct Forecast {
 /// neighbours in the whole series (leave-out by the Theiler window `theiler`, the point itself
 /// always excluded), weighted `exp(-d_i/d_1)`. Neighbours whose future is missing or beyond the
 /// end are skipped in favour of the next nearest.
-pub fn simplex_forecast(x: &[f64], e: usize, tau: usize, horizon: usize, theiler: usize) -> Result<Forecast, EngineError> {
+pub fn simplex_forecast(
+    x: &[f64],
+    e: usize,
+    tau: usize,
+    horizon: usize,
+    theiler: usize,
+) -> Result<Forecast, EngineError> {
     let m = Manifold::new(x, e, tau)?;
     let needed = e + 2 + 2 * theiler + horizon;
     if m.len() < needed {
-        return Err(EngineError::SeriesTooShort { variable: None, usable: m.len(), needed, e, tau });
+        return Err(EngineError::SeriesTooShort {
+            variable: None,
+            usable: m.len(),
+            needed,
+            e,
+            tau,
+        });
     }
     let library = Library::all(m.len());
-    let r = estimate_with(&m, &library, &ExactScan::new(&m, theiler), x, horizon as i32);
-    Ok(Forecast { predictions: r.estimates, skill: r.skill, predicted: r.predicted })
+    let r = estimate_with(
+        &m,
+        &library,
+        &ExactScan::new(&m, theiler),
+        x,
+        horizon as i32,
+    );
+    Ok(Forecast {
+        predictions: r.estimates,
+        skill: r.skill,
+        predicted: r.predicted,
+    })
 }

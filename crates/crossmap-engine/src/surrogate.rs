@@ -15,7 +15,9 @@ pub struct SurrogateMaker {
 
 impl std::fmt::Debug for SurrogateMaker {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.debug_struct("SurrogateMaker").field("n", &self.n).finish()
+        f.debug_struct("SurrogateMaker")
+            .field("n", &self.n)
+            .finish()
     }
 }
 
@@ -23,7 +25,11 @@ impl SurrogateMaker {
     /// Plan transforms for length `n`.
     pub fn new(n: usize) -> Self {
         let mut planner = RealFftPlanner::<f64>::new();
-        Self { n, forward: planner.plan_fft_forward(n.max(1)), inverse: planner.plan_fft_inverse(n.max(1)) }
+        Self {
+            n,
+            forward: planner.plan_fft_forward(n.max(1)),
+            inverse: planner.plan_fft_inverse(n.max(1)),
+        }
     }
 
     /// Ebisuzaki (1997) surrogate: same amplitude spectrum (so same autocorrelation), phases drawn
@@ -40,13 +46,18 @@ impl SurrogateMaker {
             return x.to_vec();
         }
         let mean = finite.iter().sum::<f64>() / finite.len() as f64;
-        let mut input: Vec<f64> = x.iter().map(|&v| if v.is_finite() { v } else { mean }).collect();
+        let mut input: Vec<f64> = x
+            .iter()
+            .map(|&v| if v.is_finite() { v } else { mean })
+            .collect();
         let mut spectrum = self.forward.make_output_vec();
-        self.forward.process(&mut input, &mut spectrum).expect("planned length");
+        self.forward
+            .process(&mut input, &mut spectrum)
+            .expect("planned length");
         spectrum[0].im = 0.0;
         let last = spectrum.len() - 1;
         for (j, c) in spectrum.iter_mut().enumerate().skip(1) {
-            if n % 2 == 0 && j == last {
+            if n.is_multiple_of(2) && j == last {
                 let sign = if unit(rng) < 0.5 { -1.0 } else { 1.0 };
                 *c = Complex::new(sign * c.norm(), 0.0);
             } else {
@@ -55,8 +66,16 @@ impl SurrogateMaker {
             }
         }
         let mut out = self.inverse.make_output_vec();
-        self.inverse.process(&mut spectrum, &mut out).expect("planned length");
-        out.iter_mut().zip(x).for_each(|(o, &v)| *o = if v.is_finite() { *o / n as f64 } else { f64::NAN });
+        self.inverse
+            .process(&mut spectrum, &mut out)
+            .expect("planned length");
+        out.iter_mut().zip(x).for_each(|(o, &v)| {
+            *o = if v.is_finite() {
+                *o / n as f64
+            } else {
+                f64::NAN
+            }
+        });
         out
     }
 
@@ -65,9 +84,15 @@ impl SurrogateMaker {
     /// the anomalies' timing is destroyed.
     pub fn seasonal(&self, x: &[f64], period: usize, rng: &mut ChaCha8Rng) -> Vec<f64> {
         let cycle = seasonal_cycle(x, period);
-        let anomalies: Vec<f64> = x.iter().enumerate().map(|(t, &v)| v - cycle[t % period]).collect();
+        let anomalies: Vec<f64> = x
+            .iter()
+            .enumerate()
+            .map(|(t, &v)| v - cycle[t % period])
+            .collect();
         let mut out = self.phase_randomised(&anomalies, rng);
-        out.iter_mut().enumerate().for_each(|(t, v)| *v += cycle[t % period]);
+        out.iter_mut()
+            .enumerate()
+            .for_each(|(t, v)| *v += cycle[t % period]);
         out
     }
 }
@@ -83,7 +108,10 @@ pub fn seasonal_cycle(x: &[f64], period: usize) -> Vec<f64> {
             count[t % period] += 1;
         }
     }
-    sum.iter().zip(&count).map(|(&s, &c)| if c > 0 { s / c as f64 } else { 0.0 }).collect()
+    sum.iter()
+        .zip(&count)
+        .map(|(&s, &c)| if c > 0 { s / c as f64 } else { 0.0 })
+        .collect()
 }
 
 #[cfg(test)]
@@ -104,7 +132,9 @@ mod tests {
     fn phase_randomisation_keeps_the_amplitude_spectrum() {
         // Ebisuzaki (1997): the surrogate shares the periodogram of the original.
         for n in [64usize, 65] {
-            let x: Vec<f64> = (0..n).map(|t| ((t * t) as f64 * 0.37).sin() + 0.01 * t as f64).collect();
+            let x: Vec<f64> = (0..n)
+                .map(|t| ((t * t) as f64 * 0.37).sin() + 0.01 * t as f64)
+                .collect();
             let s = SurrogateMaker::new(n).phase_randomised(&x, &mut keyed_rng(&[n as u64]));
             assert_ne!(s, x);
             for (a, b) in power(&x).iter().zip(power(&s)) {
@@ -116,7 +146,9 @@ mod tests {
     #[test]
     fn seasonal_surrogate_keeps_the_cycle_and_the_gaps() {
         let n = 120;
-        let mut x: Vec<f64> = (0..n).map(|t| (t % 12) as f64 + ((t * 7) % 5) as f64 * 0.1).collect();
+        let mut x: Vec<f64> = (0..n)
+            .map(|t| (t % 12) as f64 + ((t * 7) % 5) as f64 * 0.1)
+            .collect();
         x[5] = f64::NAN;
         let s = SurrogateMaker::new(n).seasonal(&x, 12, &mut keyed_rng(&[3]));
         assert!(s[5].is_nan());

@@ -1,6 +1,9 @@
 //! Property tests (proptest): invariances every cross-map skill must have.
 
-use crossmap_engine::{CrossMapParams, EmbeddingSettings, LibrarySizes, PairEnsemble, choose_embedding, cross_map_all, cross_map_with_library};
+use crossmap_engine::{
+    CrossMapParams, EmbeddingSettings, LibrarySizes, PairEnsemble, choose_embedding, cross_map_all,
+    cross_map_with_library,
+};
 use proptest::prelude::*;
 
 fn coupled_logistic(n: usize, x0: f64, y0: f64) -> (Vec<f64>, Vec<f64>) {
@@ -15,7 +18,13 @@ fn coupled_logistic(n: usize, x0: f64, y0: f64) -> (Vec<f64>, Vec<f64>) {
 fn bits(p: &[PairEnsemble]) -> Vec<u64> {
     p.iter()
         .flat_map(|e| {
-            e.skills.iter().flatten().chain(&e.lag_skills).chain(&e.surrogate_skills).map(|v| v.to_bits()).collect::<Vec<_>>()
+            e.skills
+                .iter()
+                .flatten()
+                .chain(&e.lag_skills)
+                .chain(&e.surrogate_skills)
+                .map(|v| v.to_bits())
+                .collect::<Vec<_>>()
         })
         .collect()
 }

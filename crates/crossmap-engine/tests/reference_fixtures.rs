@@ -13,11 +13,19 @@ const FIXTURE: &str = include_str!(concat!(
 ));
 
 fn series(v: &Value) -> Vec<f64> {
-    v.as_array().unwrap().iter().map(|x| x.as_f64().unwrap_or(f64::NAN)).collect()
+    v.as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_f64().unwrap_or(f64::NAN))
+        .collect()
 }
 
 fn usizes(v: &Value) -> Vec<usize> {
-    v.as_array().unwrap().iter().map(|x| x.as_u64().unwrap() as usize).collect()
+    v.as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_u64().unwrap() as usize)
+        .collect()
 }
 
 fn assert_series_eq(ours: &[f64], reference: &[f64], what: &str) {
@@ -36,9 +44,16 @@ fn neighbour_times_and_distances_match_ckdtree() {
     let f: Value = serde_json::from_str(FIXTURE).unwrap();
     let y = series(&f["response"]);
     for case in f["cases"].as_array().unwrap() {
-        let (e, tau, w) = (case["e"].as_u64().unwrap() as usize, case["tau"].as_u64().unwrap() as usize, case["theiler"].as_u64().unwrap() as usize);
+        let (e, tau, w) = (
+            case["e"].as_u64().unwrap() as usize,
+            case["tau"].as_u64().unwrap() as usize,
+            case["theiler"].as_u64().unwrap() as usize,
+        );
         let m = Manifold::new(&y, e, tau).unwrap();
-        let lib_pos: Vec<u32> = usizes(&case["library_times"]).iter().map(|&t| m.position(t).unwrap() as u32).collect();
+        let lib_pos: Vec<u32> = usizes(&case["library_times"])
+            .iter()
+            .map(|&t| m.position(t).unwrap() as u32)
+            .collect();
         let lib = Library::from_positions(lib_pos, m.len());
         let scan = ExactScan::new(&m, w);
         let lists = SortedLists::new(&m, w, 8);
@@ -64,12 +79,20 @@ fn cross_map_estimates_and_skills_match_reference() {
     let f: Value = serde_json::from_str(FIXTURE).unwrap();
     let (y, x) = (series(&f["response"]), series(&f["driver"]));
     for case in f["cases"].as_array().unwrap() {
-        let (e, tau, w) = (case["e"].as_u64().unwrap() as usize, case["tau"].as_u64().unwrap() as usize, case["theiler"].as_u64().unwrap() as usize);
+        let (e, tau, w) = (
+            case["e"].as_u64().unwrap() as usize,
+            case["tau"].as_u64().unwrap() as usize,
+            case["theiler"].as_u64().unwrap() as usize,
+        );
         let lib = usizes(&case["library_times"]);
         for cm in case["cross_maps"].as_array().unwrap() {
             let lag = cm["lag"].as_i64().unwrap() as i32;
             let r = cross_map_with_library(&y, &x, e, tau, w, &lib, lag).unwrap();
-            assert_series_eq(&r.estimates, &series(&cm["estimates"]), &format!("E={e} tau={tau} lag={lag}"));
+            assert_series_eq(
+                &r.estimates,
+                &series(&cm["estimates"]),
+                &format!("E={e} tau={tau} lag={lag}"),
+            );
             assert_eq!(r.predicted, cm["predicted"].as_u64().unwrap() as usize);
             assert_abs_diff_eq!(r.skill, cm["skill"].as_f64().unwrap(), epsilon = 1e-10);
         }
