@@ -1,0 +1,511 @@
+//! Cross mapping (Sugihara et al. 2012): neighbour tables per library, reused for every target.
+//!
+//! Direction: for driver -> response, neighbours come from the RESPONSE's delay embedding and the
+//! DRIVER's values are estimated. Lag `l` (Ye et al. 2015) estimates `driver(t + l)` from the
+//! response state at `t`; for true driving the best lag is expected at `l <= 0`, because the
+//! response's state records the driver's past.
+
+use crate::embed::{Embedding, Manifold};
+use crate::neighbours::{
+    ExactScan, Library, Neighbour, NeighbourIndex, SortedLists, prefer_walk, walk_depth,
+};
+use crate::params::ValidParams;
+use crate::seeds::{TAG_LIBRARY, TAG_SURROGATE, keyed_rng, sample_without_replacement};
+use crate::stats::{finite_mean, pearson};
+use crate::surrogate::SurrogateMaker;
+use crate::{EngineError, PairEnsemble};
+use rayon::prelude::*;
+
+/// Simplex weights `w_i = exp(-d_i / d_1)`, normalised (Sugihara & May 1990).
+///
+/// Zero nearest distance (`d_1 == 0`): the limit of the rule as `d_1 -> 0+`, i.e. equal weight
+/// on the neighbours at distance zero and none on the rest.
+pub fn simplex_weights(neighbours: &[Neighbour], out: &mut Vec<f64>) {
+    out.clear();
+    let Some(first) = neighbours.first() else {
+        return;
+    };
+    let d1 = first.dist;
+    if d1 > 0.0 {
+        out.extend(neighbours.iter().map(|n| (-n.dist / d1).exp()));
+    } else {
+        out.extend(
+            neighbours
+                .iter()
+                .map(|n| if n.dist == 0.0 { 1.0 } else { 0.0 }),
+        );
+    }
+    let s: f64 = out.iter().sum();
+    out.iter_mut().for_each(|w| *w /= s);
+}
+
+/// The value of `target` at time `t + lag`, if inside the series and finite.
+#[inline]
+fn target_at(target: &[f64], t: usize, lag: i32) -> Option<f64> {
+    let s = t as i64 + i64::from(lag);
+    if s < 0 {
+        return None;
+    }
+    target.get(s as usize).copied().filter(|v| v.is_finite())
+}
+
+/// E+1 neighbours and weights for every manifold position under one library.
+#[derive(Debug, Clone)]
+pub(crate) struct Table {
+    k: usize,
+    pos: Vec<u32>,
+    weight: Vec<f64>,
+    full: Vec<bool>,
+}
+
+#[derive(Default)]
+pub(crate) struct Scratch {
+    nb: Vec<Neighbour>,
+    w: Vec<f64>,
+    est: Vec<f64>,
+    obs: Vec<f64>,
+}
+
+impl Table {
+    pub(crate) fn build(
+        index: &dyn NeighbourIndex,
+        library: &Library,
+        k: usize,
+        s: &mut Scratch,
+    ) -> Self {
+        let n = index.manifold().len();
+        let mut t = Table {
+            k,
+            pos: vec![0; n * k],
+            weight: vec![0.0; n * k],
+            full: vec![false; n],
+        };
+        for q in 0..n {
+            index.nearest(q, library, k, &|_| true, &mut s.nb);
+            if s.nb.len() == k {
+                simplex_weights(&s.nb, &mut s.w);
+                t.full[q] = true;
+                for (j, (nb, &w)) in s.nb.iter().zip(&s.w).enumerate() {
+                    t.pos[q * k + j] = nb.pos;
+                    t.weight[q * k + j] = w;
+                }
+            }
+        }
+        t
+    }
+
+    /// Estimates of `target(t + lag)` per query position (NaN where unpredictable), written to
+    /// `s.est`/`s.obs` as aligned pairs; `per_query`, when given, receives the estimate by position.
+    pub(crate) fn estimate(
+        &self,
+        index: &dyn NeighbourIndex,
+        library: &Library,
+        target: &[f64],
+        lag: i32,
+        s: &mut Scratch,
+        mut per_query: Option<&mut [f64]>,
+    ) {
+        let m = index.manifold();
+        let k = self.k;
+        s.est.clear();
+        s.obs.clear();
+        for q in 0..m.len() {
+            if !self.full[q] {
+                continue;
+            }
+            let Some(obs) = target_at(target, m.time(q), lag) else {
+                continue;
+            };
+            let mut est = 0.0;
+            let mut ok = true;
+            for j in 0..k {
+                match target_at(target, m.time(self.pos[q * k + j] as usize), lag) {
+                    Some(v) => est += self.weight[q * k + j] * v,
+                    None => {
+                        ok = false;
+                        break;
+                    }
+                }
+            }
+            if !ok {
+                // Rare path: a neighbour's target is missing or off the end, so take the next
+                // neighbour instead (re-query with the target's validity as a filter).
+                let accept = |p: usize| target_at(target, m.time(p), lag).is_some();
+                index.nearest(q, library, k, &accept, &mut s.nb);
+                if s.nb.len() < k {
+                    continue;
+                }
+                simplex_weights(&s.nb, &mut s.w);
+                est =
+                    s.nb.iter()
+                        .zip(&s.w)
+                        .map(|(nb, &w)| {
+                            w * target_at(target, m.time(nb.pos as usize), lag).expect("accepted")
+                        })
+                        .sum();
+            }
+            if let Some(pq) = per_query.as_deref_mut() {
+                pq[q] = est;
+            }
+            s.est.push(est);
+            s.obs.push(obs);
+        }
+    }
+
+    pub(crate) fn skill(
+        &self,
+        index: &dyn NeighbourIndex,
+        library: &Library,
+        target: &[f64],
+        lag: i32,
+        s: &mut Scratch,
+    ) -> f64 {
+        self.estimate(index, library, target, lag, s, None);
+        pearson(&s.est, &s.obs)
+    }
+}
+
+/// Cross-map estimates with an explicit library (for checks against reference implementations).
+#[derive(Debug, Clone, PartialEq)]
+pub struct CrossMapEstimate {
+    /// `estimates[t]`: estimate of `driver(t + lag)` from the response state at time `t`; NaN
+    /// where the state is invalid or the point is unpredictable.
+    pub estimates: Vec<f64>,
+    /// Pearson r of estimates against observed driver values over all predictable points.
+    pub skill: f64,
+    /// Number of predictable points.
+    pub predicted: usize,
+}
+
+/// Cross map `driver` from the `(e, tau)` embedding of `response` using exactly the library of
+/// delay vectors at `library_times`; predictions for every valid response state.
+pub fn cross_map_with_library(
+    response: &[f64],
+    driver: &[f64],
+    e: usize,
+    tau: usize,
+    theiler: usize,
+    library_times: &[usize],
+    lag: i32,
+) -> Result<CrossMapEstimate, EngineError> {
+    if response.len() != driver.len() {
+        return Err(EngineError::LengthMismatch {
+            expected: response.len(),
+            found: driver.len(),
+        });
+    }
+    let m = Manifold::new(response, e, tau)?;
+    let positions = library_times
+        .iter()
+        .map(|&t| {
+            m.position(t)
+                .map(|p| p as u32)
+                .ok_or(EngineError::LibraryTimeInvalid { time: t })
+        })
+        .collect::<Result<Vec<u32>, _>>()?;
+    let library = Library::from_positions(positions, m.len());
+    Ok(estimate_with(
+        &m,
+        &library,
+        &ExactScan::new(&m, theiler),
+        driver,
+        lag,
+    ))
+}
+
+pub(crate) fn estimate_with(
+    m: &Manifold,
+    library: &Library,
+    index: &dyn NeighbourIndex,
+    target: &[f64],
+    lag: i32,
+) -> CrossMapEstimate {
+    let mut s = Scratch::default();
+    let table = Table::build(index, library, m.e() + 1, &mut s);
+    let mut by_pos = vec![f64::NAN; m.len()];
+    table.estimate(index, library, target, lag, &mut s, Some(&mut by_pos));
+    let mut estimates = vec![f64::NAN; m.series_len()];
+    for (p, v) in by_pos.into_iter().enumerate() {
+        estimates[m.time(p)] = v;
+    }
+    CrossMapEstimate {
+        estimates,
+        skill: pearson(&s.est, &s.obs),
+        predicted: s.est.len(),
+    }
+}
+
+/// The random library for (seed, response, size, replicate): `size` positions drawn without
+/// replacement. Keyed by the size's value (not its index), so adding sizes leaves others intact.
+pub fn draw_library(
+    seed: u64,
+    response: usize,
+    size: usize,
+    replicate: usize,
+    n: usize,
+) -> Library {
+    let mut rng = keyed_rng(&[
+        TAG_LIBRARY,
+        seed,
+        response as u64,
+        size as u64,
+        replicate as u64,
+    ]);
+    Library::from_positions(sample_without_replacement(&mut rng, n, size), n)
+}
+
+/// Every ordered pair whose response is `response`: one work unit (one manifold's tables).
+///
+/// Returns one [`PairEnsemble`] per driver `d != response`, in increasing `d`. Neighbour tables
+/// are built once per (library size, replicate) and reused for every driver, lag and surrogate;
+/// rayon runs across (size, replicate) items; every random draw is keyed, so results are
+/// bit-identical for any thread count. When a size equals the usable length every replicate
+/// library is the whole manifold, so that table is built once and its skill repeated.
+///
+/// # Panics
+/// When `params` was not validated for these `series` and `embeddings`.
+pub fn cross_map_response(
+    series: &[Vec<f64>],
+    embeddings: &[Embedding],
+    response: usize,
+    params: &ValidParams,
+) -> Vec<PairEnsemble> {
+    assert_eq!(series.len(), embeddings.len(), "one embedding per series");
+    assert_eq!(
+        params.plans.len(),
+        series.len(),
+        "params validated for another set of series"
+    );
+    assert!(
+        series.iter().all(|s| s.len() == params.n_points),
+        "series length differs from the validated one"
+    );
+    let plan = &params.plans[response];
+    let raw = &params.raw;
+    let emb = &embeddings[response];
+    let m = Manifold::new(&series[response], emb.e, emb.tau).expect("validated embedding");
+    let n = m.len();
+    let k = emb.e + 1;
+    let sizes = &plan.library_sizes;
+    let drivers: Vec<usize> = (0..series.len()).filter(|&d| d != response).collect();
+
+    let walk_min = sizes
+        .iter()
+        .copied()
+        .filter(|&l| prefer_walk(n, l, emb.e))
+        .min();
+    let lists = walk_min.map(|l| SortedLists::new(&m, plan.theiler, walk_depth(n, l, emb.e)));
+    let scan = ExactScan::new(&m, plan.theiler);
+    let index_for = |l: usize| -> &dyn NeighbourIndex {
+        match &lists {
+            Some(lists) if prefer_walk(n, l, emb.e) => lists,
+            _ => &scan,
+        }
+    };
+    let distinct_reps = |l: usize| if l >= n { 1 } else { raw.replicates };
+
+    // Every size but the largest: skill at lag 0 for each driver.
+    let last = sizes.len() - 1;
+    let units: Vec<(usize, usize)> = (0..last)
+        .flat_map(|li| (0..distinct_reps(sizes[li])).map(move |r| (li, r)))
+        .collect();
+    let unit_skills: Vec<Vec<f64>> = units
+        .par_iter()
+        .map_init(Scratch::default, |s, &(li, r)| {
+            let l = sizes[li];
+            let lib = draw_library(raw.seed, response, l, r, n);
+            let index = index_for(l);
+            let table = Table::build(index, &lib, k, s);
+            drivers
+                .iter()
+                .map(|&d| table.skill(index, &lib, &series[d], 0, s))
+                .collect()
+        })
+        .collect();
+
+    // The largest size: tables kept for lags and surrogates.
+    let l_max = sizes[last];
+    let index = index_for(l_max);
+    let tables: Vec<(Library, Table)> = (0..distinct_reps(l_max))
+        .into_par_iter()
+        .map_init(Scratch::default, |s, r| {
+            let lib = draw_library(raw.seed, response, l_max, r, n);
+            let table = Table::build(index, &lib, k, s);
+            (lib, table)
+        })
+        .collect();
+    let max_lag = plan.max_lag as i32;
+    let lags: Vec<i32> = (-max_lag..=max_lag).collect();
+    // lag_by_table[d_idx * tables + t][lag_idx]
+    let lag_by_table: Vec<Vec<f64>> = (0..drivers.len() * tables.len())
+        .into_par_iter()
+        .map_init(Scratch::default, |s, u| {
+            let (d, (lib, table)) = (drivers[u / tables.len()], &tables[u % tables.len()]);
+            lags.iter()
+                .map(|&lag| table.skill(index, lib, &series[d], lag, s))
+                .collect()
+        })
+        .collect();
+    let surrogate_skills: Vec<f64> = if raw.surrogates == 0 {
+        Vec::new()
+    } else {
+        let maker = SurrogateMaker::new(params.n_points);
+        (0..drivers.len() * raw.surrogates)
+            .into_par_iter()
+            .map_init(Scratch::default, |s, u| {
+                let (d, j) = (drivers[u / raw.surrogates], u % raw.surrogates);
+                let mut rng =
+                    keyed_rng(&[TAG_SURROGATE, raw.seed, d as u64, response as u64, j as u64]);
+                let surrogate = match raw.period {
+                    Some(p) => maker.seasonal(&series[d], p, &mut rng),
+                    None => maker.phase_randomised(&series[d], &mut rng),
+                };
+                let per_table: Vec<f64> = tables
+                    .iter()
+                    .map(|(lib, table)| table.skill(index, lib, &surrogate, 0, s))
+                    .collect();
+                finite_mean(&per_table)
+            })
+            .collect()
+    };
+
+    let zero_lag = plan.max_lag;
+    drivers
+        .iter()
+        .enumerate()
+        .map(|(di, &driver)| {
+            let mut skills: Vec<Vec<f64>> = Vec::with_capacity(sizes.len());
+            let mut cursor = 0;
+            for (li, &l) in sizes.iter().enumerate().take(last) {
+                let reps = distinct_reps(l);
+                let row: Vec<f64> = (0..raw.replicates)
+                    .map(|r| unit_skills[cursor + if reps == 1 { 0 } else { r }][di])
+                    .collect();
+                debug_assert!(units[cursor].0 == li);
+                cursor += reps;
+                skills.push(row);
+            }
+            let per_table = &lag_by_table[di * tables.len()..(di + 1) * tables.len()];
+            skills.push(
+                (0..raw.replicates)
+                    .map(|r| per_table[r % per_table.len()][zero_lag])
+                    .collect(),
+            );
+            let lag_skills = (0..lags.len())
+                .map(|li| finite_mean(&per_table.iter().map(|row| row[li]).collect::<Vec<_>>()))
+                .collect();
+            let surrogate_skills = if raw.surrogates == 0 {
+                Vec::new()
+            } else {
+                surrogate_skills[di * raw.surrogates..(di + 1) * raw.surrogates].to_vec()
+            };
+            PairEnsemble {
+                driver,
+                response,
+                library_sizes: sizes.clone(),
+                skills,
+                lags: lags.clone(),
+                lag_skills,
+                surrogate_skills,
+            }
+        })
+        .collect()
+}
+
+/// Every ordered pair: responses one after another (one manifold's tables in memory at a time),
+/// each response's work spread over rayon. `progress` receives the number of finished pairs.
+///
+/// Output order: by response, then by driver.
+pub fn cross_map_all(
+    series: &[Vec<f64>],
+    embeddings: &[Embedding],
+    params: &ValidParams,
+    progress: &(dyn Fn(usize) + Sync),
+) -> Vec<PairEnsemble> {
+    let mut out = Vec::with_capacity(series.len() * series.len().saturating_sub(1));
+    for response in 0..series.len() {
+        out.extend(cross_map_response(series, embeddings, response, params));
+        progress(out.len());
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::params::{CrossMapParams, LibrarySizes};
+    use approx::assert_abs_diff_eq;
+
+    fn nb(d: &[f64]) -> Vec<Neighbour> {
+        d.iter()
+            .enumerate()
+            .map(|(i, &dist)| Neighbour {
+                pos: i as u32,
+                dist,
+            })
+            .collect()
+    }
+
+    #[test]
+    fn weights_follow_exp_rule_and_zero_distance_limit() {
+        let mut w = Vec::new();
+        simplex_weights(&nb(&[1.0, 2.0, 3.0]), &mut w);
+        // Sugihara & May (1990): w_i proportional to exp(-d_i / d_1).
+        let raw = [(-1.0f64).exp(), (-2.0f64).exp(), (-3.0f64).exp()];
+        let s: f64 = raw.iter().sum();
+        for (a, b) in w.iter().zip(raw) {
+            assert_abs_diff_eq!(*a, b / s, epsilon = 1e-15);
+        }
+        simplex_weights(&nb(&[0.0, 0.0, 0.5]), &mut w);
+        assert_eq!(w, vec![0.5, 0.5, 0.0]);
+    }
+
+    #[test]
+    fn automatic_index_choice_matches_exact_scan_per_library() {
+        let n = 600;
+        let (mut x, mut y) = (vec![0.4], vec![0.2]);
+        for t in 0..n - 1 {
+            x.push(x[t] * (3.8 - 3.8 * x[t]));
+            y.push(y[t] * (3.5 - 3.5 * y[t] - 0.1 * x[t]));
+        }
+        y[100] = f64::NAN;
+        x[300] = f64::NAN;
+        let series = vec![x, y];
+        let emb: Vec<Embedding> = (0..2)
+            .map(|_| Embedding {
+                e: 3,
+                tau: 1,
+                simplex_skill: 1.0,
+                skill_by_e: vec![],
+                vectors_excluded: 3,
+            })
+            .collect();
+        let params = CrossMapParams::default()
+            .with_library_sizes(LibrarySizes::Explicit(vec![5, 30, 200, 595]))
+            .with_replicates(3)
+            .validate(n, &emb)
+            .unwrap();
+        let m = Manifold::new(&series[1], 3, 1).unwrap();
+        assert!(prefer_walk(m.len(), 200, 3) && !prefer_walk(m.len(), 5, 3));
+        let out = cross_map_response(&series, &emb, 1, &params);
+        let scan = ExactScan::new(&m, params.plans[1].theiler);
+        for (li, &l) in params.plans[1].library_sizes.iter().enumerate() {
+            for r in 0..3 {
+                let lib = draw_library(0, 1, l, if l >= m.len() { 0 } else { r }, m.len());
+                let want = estimate_with(&m, &lib, &scan, &series[0], 0).skill;
+                assert_eq!(
+                    out[0].skills[li][r].to_bits(),
+                    want.to_bits(),
+                    "L={l} r={r}"
+                );
+            }
+        }
+        assert_eq!(out[0].lags.len(), out[0].lag_skills.len());
+        let zero = out[0].lags.iter().position(|&l| l == 0).unwrap();
+        assert_abs_diff_eq!(
+            out[0].lag_skills[zero],
+            out[0].skills[3][0],
+            epsilon = 1e-15
+        );
+    }
+}

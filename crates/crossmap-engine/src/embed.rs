@@ -1,0 +1,348 @@
+//! Delay embedding (Takens 1981) and the per-variable choice of delay and dimension.
+
+use crate::EngineError;
+use crate::simplex::simplex_forecast;
+use rayon::prelude::*;
+
+/// Largest embedding dimension tried when none is fixed (the E = 1..=10).
+pub const DEFAULT_MAX_E: usize = 10;
+
+/// Parsimony tolerance: the smallest E whose simplex skill is within this fraction of the best is
+/// chosen (common practice: prefer the simplest model that forecasts about as well as the best).
+pub const PARSIMONY_TOLERANCE: f64 = 0.02;
+
+/// Upper bound on the automatically chosen delay, in time steps.
+pub const MAX_AUTO_TAU: usize = 50;
+
+/// How to choose each variable's embedding.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EmbeddingSettings {
+    /// Fixed embedding dimension for every variable; `None` chooses by simplex projection.
+    pub e: Option<usize>,
+    /// Fixed delay for every variable; `None` chooses by the documented rule.
+    pub tau: Option<usize>,
+    /// Largest E tried by simplex projection (default 10).
+    pub max_e: usize,
+    /// Theiler window in time steps; `None` uses the documented default.
+    pub theiler: Option<usize>,
+}
+
+impl Default for EmbeddingSettings {
+    fn default() -> Self {
+        Self {
+            e: None,
+            tau: None,
+            max_e: DEFAULT_MAX_E,
+            theiler: None,
+        }
+    }
+}
+
+/// The embedding chosen for one variable.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Embedding {
+    /// Embedding dimension.
+    pub e: usize,
+    /// Delay in time steps.
+    pub tau: usize,
+    /// Simplex one-step forecast skill at the chosen E.
+    pub simplex_skill: f64,
+    /// Simplex skill for E = 1..=max_e (NaN where not computable), for the record.
+    pub skill_by_e: Vec<f64>,
+    /// Delay vectors left out because they touch a missing value.
+    pub vectors_excluded: usize,
+}
+
+/// Default Theiler window: `tau * (E - 1)` steps, the time span of one delay vector.
+///
+/// Delay vectors closer in time than their own span share coordinates with the query, so their
+/// closeness is partly trivial (Theiler 1986); excluding them costs few neighbours. For E = 1 this
+/// is 0, i.e. only the point itself is excluded.
+pub fn default_theiler(e: usize, tau: usize) -> usize {
+    tau * e.saturating_sub(1)
+}
+
+/// The delay vectors of one series: `v(t) = (x[t], x[t - tau], ..., x[t - (E-1) tau])`.
+///
+/// Only vectors that touch no missing (non-finite) value are kept; each kept vector is a
+/// *position* `0..len()` with its time index `time(p)`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Manifold {
+    e: usize,
+    tau: usize,
+    series_len: usize,
+    times: Vec<u32>,
+    coords: Vec<f64>,
+    position_of_time: Vec<u32>,
+}
+
+const NO_POSITION: u32 = u32::MAX;
+
+impl Manifold {
+    /// Embed `x` with dimension `e` and delay `tau`.
+    pub fn new(x: &[f64], e: usize, tau: usize) -> Result<Self, EngineError> {
+        if e == 0 {
+            return Err(EngineError::EmbeddingDimensionZero);
+        }
+        if tau == 0 {
+            return Err(EngineError::DelayZero);
+        }
+        let span = (e - 1) * tau;
+        if x.len() <= span {
+            return Err(EngineError::SeriesTooShort {
+                variable: None,
+                usable: 0,
+                needed: span + 1,
+                e,
+                tau,
+            });
+        }
+        let mut times = Vec::with_capacity(x.len() - span);
+        let mut coords = Vec::with_capacity((x.len() - span) * e);
+        let mut position_of_time = vec![NO_POSITION; x.len()];
+        for t in span..x.len() {
+            if (0..e).all(|j| x[t - j * tau].is_finite()) {
+                position_of_time[t] = times.len() as u32;
+                times.push(t as u32);
+                coords.extend((0..e).map(|j| x[t - j * tau]));
+            }
+        }
+        Ok(Self {
+            e,
+            tau,
+            series_len: x.len(),
+            times,
+            coords,
+            position_of_time,
+        })
+    }
+
+    /// Embedding dimension.
+    pub fn e(&self) -> usize {
+        self.e
+    }
+
+    /// Delay.
+    pub fn tau(&self) -> usize {
+        self.tau
+    }
+
+    /// Number of valid delay vectors.
+    pub fn len(&self) -> usize {
+        self.times.len()
+    }
+
+    /// True when no delay vector is valid.
+    pub fn is_empty(&self) -> bool {
+        self.times.is_empty()
+    }
+
+    /// Length of the embedded series.
+    pub fn series_len(&self) -> usize {
+        self.series_len
+    }
+
+    /// Delay vectors that could exist but touch a missing value.
+    pub fn vectors_excluded(&self) -> usize {
+        self.series_len - (self.e - 1) * self.tau - self.len()
+    }
+
+    /// Time index of position `p`.
+    #[inline]
+    pub fn time(&self, p: usize) -> usize {
+        self.times[p] as usize
+    }
+
+    /// Position of the delay vector at time `t`, if valid.
+    pub fn position(&self, t: usize) -> Option<usize> {
+        match self.position_of_time.get(t) {
+            Some(&p) if p != NO_POSITION => Some(p as usize),
+            _ => None,
+        }
+    }
+
+    /// Coordinates of position `p`.
+    #[inline]
+    pub fn point(&self, p: usize) -> &[f64] {
+        &self.coords[p * self.e..(p + 1) * self.e]
+    }
+
+    /// Squared Euclidean distance between positions `a` and `b`.
+    #[inline]
+    pub fn dist2(&self, a: usize, b: usize) -> f64 {
+        sq_dist(self.point(a), self.point(b))
+    }
+}
+
+/// Squared Euclidean distance, summed in coordinate order (every caller sums the same way, so
+/// scan and walk agree to the last bit).
+#[inline]
+pub(crate) fn sq_dist(a: &[f64], b: &[f64]) -> f64 {
+    let mut s = 0.0;
+    for (x, y) in a.iter().zip(b) {
+        let d = x - y;
+        s += d * d;
+    }
+    s
+}
+
+/// Delay rule: the first lag at which the autocorrelation falls below 1/e, bounded to
+/// `1..=max_tau` (common practice; returns `max_tau` if it never falls that far).
+///
+/// Autocorrelation uses the global mean and variance of the finite values, over lag pairs where
+/// both values are finite.
+pub fn choose_tau(x: &[f64], max_tau: usize) -> usize {
+    let max_tau = max_tau.max(1);
+    let finite: Vec<f64> = x.iter().copied().filter(|v| v.is_finite()).collect();
+    if finite.len() < 3 {
+        return 1;
+    }
+    let mean = finite.iter().sum::<f64>() / finite.len() as f64;
+    let var = finite.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / finite.len() as f64;
+    if var <= 0.0 {
+        return 1;
+    }
+    let threshold = (-1.0f64).exp();
+    for lag in 1..=max_tau.min(x.len().saturating_sub(2)) {
+        let (mut s, mut n) = (0.0, 0usize);
+        for t in lag..x.len() {
+            let (a, b) = (x[t], x[t - lag]);
+            if a.is_finite() && b.is_finite() {
+                s += (a - mean) * (b - mean);
+                n += 1;
+            }
+        }
+        if n > 0 && s / n as f64 / var < threshold {
+            return lag;
+        }
+    }
+    max_tau
+}
+
+/// Bound used by [`choose_embedding`] for the automatic delay: at most [`MAX_AUTO_TAU`] and at
+/// most a quarter of the series per embedding dimension tried, so the largest E still embeds.
+pub fn auto_tau_bound(n: usize, max_e: usize) -> usize {
+    (n / (4 * max_e.max(1))).clamp(1, MAX_AUTO_TAU)
+}
+
+/// Per-variable embedding choice.
+///
+/// Delay: `settings.tau`, else [`choose_tau`] bounded by [`auto_tau_bound`]. Dimension:
+/// `settings.e`, else simplex projection (Sugihara & May 1990) one step ahead over E = 1..=max_e
+/// with the whole series as library (Theiler exclusion per `settings.theiler`, default
+/// [`default_theiler`]), choosing the smallest E whose skill is at least
+/// `best - PARSIMONY_TOLERANCE * |best|`.
+pub fn choose_embedding(x: &[f64], settings: &EmbeddingSettings) -> Result<Embedding, EngineError> {
+    if settings.e == Some(0) {
+        return Err(EngineError::EmbeddingDimensionZero);
+    }
+    if settings.tau == Some(0) {
+        return Err(EngineError::DelayZero);
+    }
+    if settings.max_e == 0 && settings.e.is_none() {
+        return Err(EngineError::MaxDimensionZero);
+    }
+    let max_e = settings.max_e.max(settings.e.unwrap_or(0));
+    let tau = settings
+        .tau
+        .unwrap_or_else(|| choose_tau(x, auto_tau_bound(x.len(), max_e)));
+    let candidates: Vec<usize> = match settings.e {
+        Some(e) => vec![e],
+        None => (1..=max_e).collect(),
+    };
+    let mut skill_by_e = vec![f64::NAN; max_e];
+    let mut first_err = None;
+    let results: Vec<_> = candidates
+        .par_iter()
+        .map(|&e| {
+            simplex_forecast(
+                x,
+                e,
+                tau,
+                1,
+                settings.theiler.unwrap_or_else(|| default_theiler(e, tau)),
+            )
+        })
+        .collect();
+    for (&e, r) in candidates.iter().zip(results) {
+        match r {
+            Ok(f) => skill_by_e[e - 1] = f.skill,
+            Err(err) => {
+                first_err.get_or_insert(err);
+            }
+        }
+    }
+    let best = skill_by_e
+        .iter()
+        .copied()
+        .filter(|s| s.is_finite())
+        .fold(f64::NAN, f64::max);
+    if !best.is_finite() {
+        return Err(first_err.unwrap_or(EngineError::NoForecastSkill));
+    }
+    let bar = best - PARSIMONY_TOLERANCE * best.abs();
+    let e = candidates
+        .iter()
+        .copied()
+        .find(|&e| skill_by_e[e - 1] >= bar)
+        .expect("the best E passes its own bar");
+    let manifold = Manifold::new(x, e, tau)?;
+    Ok(Embedding {
+        e,
+        tau,
+        simplex_skill: skill_by_e[e - 1],
+        skill_by_e,
+        vectors_excluded: manifold.vectors_excluded(),
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn vectors_follow_the_delay_definition_and_skip_missing() {
+        let x = [0.0, 1.0, 2.0, f64::NAN, 4.0, 5.0, 6.0, 7.0];
+        let m = Manifold::new(&x, 2, 2).unwrap();
+        // Times 2..8 exist; those touching t = 3 (t = 3, 5) are left out (Takens 1981 delay map).
+        let times: Vec<usize> = (0..m.len()).map(|p| m.time(p)).collect();
+        assert_eq!(times, vec![2, 4, 6, 7]);
+        assert_eq!(m.point(1), &[4.0, 2.0]);
+        assert_eq!(m.vectors_excluded(), 2);
+        assert_eq!(m.position(5), None);
+        assert_eq!(m.position(6), Some(2));
+    }
+
+    #[test]
+    fn tau_rule_on_a_sine_is_near_a_fifth_of_the_period() {
+        // For cos, the autocorrelation at lag k is cos(2 pi k / P); it first drops below 1/e at
+        // k/P = acos(1/e) / (2 pi) = 0.190 (analytic).
+        let p = 100.0;
+        let x: Vec<f64> = (0..2000)
+            .map(|t| (2.0 * std::f64::consts::PI * t as f64 / p).sin())
+            .collect();
+        let tau = choose_tau(&x, 50);
+        assert!((18..=21).contains(&tau), "tau = {tau}");
+    }
+
+    #[test]
+    fn settings_zero_are_rejected() {
+        let x = vec![1.0; 10];
+        let s = EmbeddingSettings {
+            e: Some(0),
+            ..Default::default()
+        };
+        assert!(matches!(
+            choose_embedding(&x, &s),
+            Err(EngineError::EmbeddingDimensionZero)
+        ));
+        let s = EmbeddingSettings {
+            tau: Some(0),
+            ..Default::default()
+        };
+        assert!(matches!(
+            choose_embedding(&x, &s),
+            Err(EngineError::DelayZero)
+        ));
+    }
+}

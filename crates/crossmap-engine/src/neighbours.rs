@@ -1,0 +1,388 @@
+//! Nearest-neighbour search on a delay manifold: an exact scan and pre-sorted candidate lists.
+//!
+//! Order rule (both implementations): candidates are ranked by (squared distance, position), so
+//! ties go to the earlier delay vector and results never depend on the implementation or on
+//! threads. Excluded always: the query itself and every vector whose time lies within the Theiler
+//! window, `|t - t_query| <= window` (Theiler 1986).
+
+use crate::embed::{Manifold, sq_dist};
+use rayon::prelude::*;
+
+/// One neighbour: its manifold position and Euclidean distance to the query.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Neighbour {
+    /// Position in the manifold.
+    pub pos: u32,
+    /// Euclidean distance to the query.
+    pub dist: f64,
+}
+
+/// A library: the subset of manifold positions neighbours may come from.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Library {
+    members: Vec<u32>,
+    mask: Vec<u64>,
+}
+
+impl Library {
+    /// Library of the given positions (duplicates removed) in a manifold of `n` positions.
+    ///
+    /// # Panics
+    /// When a position is `>= n`.
+    pub fn from_positions(mut positions: Vec<u32>, n: usize) -> Self {
+        positions.sort_unstable();
+        positions.dedup();
+        let mut mask = vec![0u64; n.div_ceil(64)];
+        for &p in &positions {
+            assert!(
+                (p as usize) < n,
+                "library position {p} outside manifold of {n}"
+            );
+            mask[p as usize / 64] |= 1 << (p % 64);
+        }
+        Self {
+            members: positions,
+            mask,
+        }
+    }
+
+    /// Every position of a manifold of `n` positions.
+    pub fn all(n: usize) -> Self {
+        Self::from_positions((0..n as u32).collect(), n)
+    }
+
+    /// Members in increasing order.
+    pub fn members(&self) -> &[u32] {
+        &self.members
+    }
+
+    /// Number of members.
+    pub fn len(&self) -> usize {
+        self.members.len()
+    }
+
+    /// True when empty.
+    pub fn is_empty(&self) -> bool {
+        self.members.is_empty()
+    }
+
+    /// Membership test.
+    #[inline]
+    pub fn contains(&self, p: usize) -> bool {
+        self.mask[p / 64] >> (p % 64) & 1 == 1
+    }
+}
+
+/// A nearest-neighbour index over one manifold with a fixed Theiler window.
+pub trait NeighbourIndex: Sync {
+    /// The indexed manifold.
+    fn manifold(&self) -> &Manifold;
+
+    /// Theiler window in time steps.
+    fn theiler(&self) -> usize;
+
+    /// Fill `out` with up to `k` library members nearest to position `q`, outside the Theiler
+    /// window and accepted by `accept`, in (distance, position) order.
+    fn nearest(
+        &self,
+        q: usize,
+        library: &Library,
+        k: usize,
+        accept: &dyn Fn(usize) -> bool,
+        out: &mut Vec<Neighbour>,
+    );
+}
+
+/// Exact scan over the library members: O(L E) per query; best for small libraries.
+#[derive(Debug, Clone, Copy)]
+pub struct ExactScan<'m> {
+    manifold: &'m Manifold,
+    theiler: usize,
+}
+
+impl<'m> ExactScan<'m> {
+    /// Index `manifold` with Theiler window `theiler`.
+    pub fn new(manifold: &'m Manifold, theiler: usize) -> Self {
+        Self { manifold, theiler }
+    }
+}
+
+/// Squared distance, or `None` as soon as a partial sum exceeds `bound` (terms are non-negative,
+/// so the full sum would too); otherwise bit-identical to [`sq_dist`].
+#[inline]
+fn sq_dist_bounded(a: &[f64], b: &[f64], bound: f64) -> Option<f64> {
+    let mut s = 0.0;
+    for (x, y) in a.iter().zip(b) {
+        let d = x - y;
+        s += d * d;
+        if s > bound {
+            return None;
+        }
+    }
+    Some(s)
+}
+
+#[inline]
+fn outside_window(tq: usize, tp: usize, w: usize) -> bool {
+    tq.abs_diff(tp) > w
+}
+
+/// Keep the `k` smallest (d2, pos) pairs seen, sorted; `best` has capacity k.
+#[inline]
+fn offer(best: &mut Vec<(f64, u32)>, k: usize, d2: f64, p: u32) {
+    if best.len() == k {
+        let worst = best[k - 1];
+        if (d2, p) >= worst {
+            return;
+        }
+        best.pop();
+    }
+    let at = best.partition_point(|&(d, i)| (d, i) < (d2, p));
+    best.insert(at, (d2, p));
+}
+
+fn scan_into(
+    m: &Manifold,
+    w: usize,
+    q: usize,
+    candidates: &[u32],
+    k: usize,
+    accept: &dyn Fn(usize) -> bool,
+    out: &mut Vec<Neighbour>,
+) {
+    out.clear();
+    if k == 0 {
+        return;
+    }
+    let tq = m.time(q);
+    let qp = m.point(q);
+    let mut best: Vec<(f64, u32)> = Vec::with_capacity(k + 1);
+    for &p in candidates {
+        let pu = p as usize;
+        if !outside_window(tq, m.time(pu), w) {
+            continue;
+        }
+        let d2 = if best.len() == k {
+            // Early abandonment: a partial sum already above the k-th best cannot enter.
+            match sq_dist_bounded(qp, m.point(pu), best[k - 1].0) {
+                Some(d2) if (d2, p) < best[k - 1] => d2,
+                _ => continue,
+            }
+        } else {
+            sq_dist(qp, m.point(pu))
+        };
+        if accept(pu) {
+            offer(&mut best, k, d2, p);
+        }
+    }
+    out.extend(best.iter().map(|&(d2, p)| Neighbour {
+        pos: p,
+        dist: d2.sqrt(),
+    }));
+}
+
+impl NeighbourIndex for ExactScan<'_> {
+    fn manifold(&self) -> &Manifold {
+        self.manifold
+    }
+
+    fn theiler(&self) -> usize {
+        self.theiler
+    }
+
+    fn nearest(
+        &self,
+        q: usize,
+        library: &Library,
+        k: usize,
+        accept: &dyn Fn(usize) -> bool,
+        out: &mut Vec<Neighbour>,
+    ) {
+        scan_into(
+            self.manifold,
+            self.theiler,
+            q,
+            library.members(),
+            k,
+            accept,
+            out,
+        );
+    }
+}
+
+/// Per query, the `depth` nearest admissible positions of the whole manifold, sorted once.
+///
+/// A random library is then a membership mask: a query walks its list until it has k members,
+/// about `k N / L` steps, independent of E. When a list runs out before k members are found the
+/// query falls back to an exact scan, so results equal [`ExactScan`]'s exactly.
+#[derive(Debug, Clone)]
+pub struct SortedLists<'m> {
+    manifold: &'m Manifold,
+    theiler: usize,
+    depth: usize,
+    lens: Vec<u32>,
+    lists: Vec<u32>,
+}
+
+impl<'m> SortedLists<'m> {
+    /// Sort, per query, the `depth` nearest positions outside the Theiler window (rayon across
+    /// queries). Memory: `4 * depth * N` bytes.
+    pub fn new(manifold: &'m Manifold, theiler: usize, depth: usize) -> Self {
+        let n = manifold.len();
+        let depth = depth.clamp(1, n.max(1));
+        let mut lists = vec![0u32; n * depth];
+        let lens: Vec<u32> = lists
+            .par_chunks_mut(depth)
+            .enumerate()
+            .map_init(Vec::new, |scratch: &mut Vec<(f64, u32)>, (q, row)| {
+                scratch.clear();
+                let tq = manifold.time(q);
+                let qp = manifold.point(q);
+                for p in 0..n {
+                    if outside_window(tq, manifold.time(p), theiler) {
+                        scratch.push((sq_dist(qp, manifold.point(p)), p as u32));
+                    }
+                }
+                let cmp =
+                    |a: &(f64, u32), b: &(f64, u32)| a.partial_cmp(b).expect("finite distances");
+                let keep = depth.min(scratch.len());
+                if keep > 0 && keep < scratch.len() {
+                    scratch.select_nth_unstable_by(keep - 1, cmp);
+                }
+                scratch[..keep].sort_unstable_by(cmp);
+                for (slot, &(_, p)) in row.iter_mut().zip(&scratch[..keep]) {
+                    *slot = p;
+                }
+                keep as u32
+            })
+            .collect();
+        Self {
+            manifold,
+            theiler,
+            depth,
+            lens,
+            lists,
+        }
+    }
+
+    /// List depth per query.
+    pub fn depth(&self) -> usize {
+        self.depth
+    }
+
+    /// True when the lists hold every admissible candidate (no fallback ever needed).
+    fn complete(&self, q: usize) -> bool {
+        (self.lens[q] as usize) < self.depth || self.depth >= self.manifold.len()
+    }
+}
+
+impl NeighbourIndex for SortedLists<'_> {
+    fn manifold(&self) -> &Manifold {
+        self.manifold
+    }
+
+    fn theiler(&self) -> usize {
+        self.theiler
+    }
+
+    fn nearest(
+        &self,
+        q: usize,
+        library: &Library,
+        k: usize,
+        accept: &dyn Fn(usize) -> bool,
+        out: &mut Vec<Neighbour>,
+    ) {
+        out.clear();
+        if k == 0 {
+            return;
+        }
+        let row = &self.lists[q * self.depth..q * self.depth + self.lens[q] as usize];
+        let qp = self.manifold.point(q);
+        for &p in row {
+            let pu = p as usize;
+            if library.contains(pu) && accept(pu) {
+                let dist = sq_dist(qp, self.manifold.point(pu)).sqrt();
+                out.push(Neighbour { pos: p, dist });
+                if out.len() == k {
+                    return;
+                }
+            }
+        }
+        if !self.complete(q) {
+            scan_into(
+                self.manifold,
+                self.theiler,
+                q,
+                library.members(),
+                k,
+                accept,
+                out,
+            );
+        }
+    }
+}
+
+/// Walk or scan? The walk costs about `2 k N / L` steps (mask test plus a cache miss), the scan
+/// `L E` distance terms: walk when `L^2 E > 2 k N`.
+pub fn prefer_walk(n: usize, l: usize, e: usize) -> bool {
+    let k = e + 1;
+    (l * l * e) > 2 * k * n
+}
+
+/// List depth for libraries of at least `l_min` members: four times the expected walk length
+/// `k N / L`, plus slack, so fallbacks are rare.
+pub fn walk_depth(n: usize, l_min: usize, e: usize) -> usize {
+    let k = e + 1;
+    (4 * k * n).div_ceil(l_min.max(1)) + 32
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::seeds::{keyed_rng, sample_without_replacement, unit};
+
+    fn noisy_manifold(n: usize, e: usize, seed: u64) -> Manifold {
+        let mut rng = keyed_rng(&[seed]);
+        // Rounded values force exact distance ties, exercising the (distance, position) rule.
+        let x: Vec<f64> = (0..n).map(|_| (unit(&mut rng) * 8.0).round()).collect();
+        Manifold::new(&x, e, 1).unwrap()
+    }
+
+    #[test]
+    fn walk_and_scan_agree_including_ties_and_fallbacks() {
+        for (e, w) in [(1, 0), (2, 1), (3, 4)] {
+            let m = noisy_manifold(300, e, e as u64);
+            let scan = ExactScan::new(&m, w);
+            // A shallow depth forces the fallback path for many queries.
+            let lists = SortedLists::new(&m, w, 12);
+            for (rep, l) in [(0u64, 5usize), (1, 40), (2, m.len())] {
+                let mut rng = keyed_rng(&[rep]);
+                let lib = Library::from_positions(
+                    sample_without_replacement(&mut rng, m.len(), l),
+                    m.len(),
+                );
+                let accept = |p: usize| p % 7 != 3;
+                let (mut a, mut b) = (Vec::new(), Vec::new());
+                for q in 0..m.len() {
+                    scan.nearest(q, &lib, e + 1, &accept, &mut a);
+                    lists.nearest(q, &lib, e + 1, &accept, &mut b);
+                    assert_eq!(a, b, "e={e} w={w} l={l} q={q}");
+                    for nb in &a {
+                        assert!(m.time(nb.pos as usize).abs_diff(m.time(q)) > w);
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn ties_break_by_position() {
+        let x = [0.0, 1.0, 0.0, 1.0, 0.0, 1.0];
+        let m = Manifold::new(&x, 1, 1).unwrap();
+        let mut out = Vec::new();
+        ExactScan::new(&m, 0).nearest(0, &Library::all(6), 3, &|_| true, &mut out);
+        let pos: Vec<u32> = out.iter().map(|n| n.pos).collect();
+        assert_eq!(pos, vec![2, 4, 1]);
+    }
+}

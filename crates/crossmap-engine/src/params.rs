@@ -1,0 +1,311 @@
+//! Cross-map parameters and their one-time validation against the data.
+
+use crate::EngineError;
+use crate::embed::{Embedding, default_theiler};
+
+/// Default number of log-spaced library sizes.
+pub const DEFAULT_LIBRARY_COUNT: usize = 12;
+/// Default random libraries per size.
+pub const DEFAULT_REPLICATES: usize = 100;
+/// Upper bound on the automatic largest cross-map lag.
+pub const MAX_AUTO_LAG: usize = 20;
+
+/// Library sizes: automatic (log-spaced from E+2 to the usable length) or explicit.
+#[derive(Debug, Clone, PartialEq)]
+pub enum LibrarySizes {
+    /// `count` log-spaced sizes from E+2 to the usable length (default 12).
+    Auto {
+        /// Number of sizes.
+        count: usize,
+    },
+    /// Exactly these sizes.
+    Explicit(Vec<usize>),
+}
+
+/// Raw cross-map parameters (checked by [`CrossMapParams::validate`]).
+#[derive(Debug, Clone, PartialEq)]
+pub struct CrossMapParams {
+    /// Library sizes.
+    pub library_sizes: LibrarySizes,
+    /// Random libraries per size (default 100).
+    pub replicates: usize,
+    /// Theiler window; `None` uses the documented default.
+    pub theiler: Option<usize>,
+    /// Largest absolute cross-map lag; `None` chooses from the embedding.
+    pub max_lag: Option<usize>,
+    /// Surrogate drivers per pair at the largest library size (0 = none).
+    pub surrogates: usize,
+    /// Known period in time steps for seasonal surrogates; `None` uses phase randomisation.
+    pub period: Option<usize>,
+    /// Master seed.
+    pub seed: u64,
+}
+
+impl Default for CrossMapParams {
+    fn default() -> Self {
+        Self {
+            library_sizes: LibrarySizes::Auto {
+                count: DEFAULT_LIBRARY_COUNT,
+            },
+            replicates: DEFAULT_REPLICATES,
+            theiler: None,
+            max_lag: None,
+            surrogates: 0,
+            period: None,
+            seed: 0,
+        }
+    }
+}
+
+/// The resolved plan for one response manifold.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ResponsePlan {
+    /// Valid delay vectors of the response (the usable length).
+    pub usable: usize,
+    /// Library sizes, increasing, deduplicated.
+    pub library_sizes: Vec<usize>,
+    /// Theiler window in time steps.
+    pub theiler: usize,
+    /// Largest absolute cross-map lag.
+    pub max_lag: usize,
+}
+
+/// Parameters checked against the data (library sizes resolved per response manifold).
+#[derive(Debug, Clone, PartialEq)]
+pub struct ValidParams {
+    /// The raw parameters, as given.
+    pub raw: CrossMapParams,
+    /// Series length the parameters were checked against.
+    pub n_points: usize,
+    /// One plan per variable, used when that variable is the response.
+    pub plans: Vec<ResponsePlan>,
+}
+
+impl CrossMapParams {
+    /// Set the library sizes.
+    pub fn with_library_sizes(mut self, sizes: LibrarySizes) -> Self {
+        self.library_sizes = sizes;
+        self
+    }
+    /// Set the replicates per size.
+    pub fn with_replicates(mut self, r: usize) -> Self {
+        self.replicates = r;
+        self
+    }
+    /// Set the Theiler window.
+    pub fn with_theiler(mut self, w: Option<usize>) -> Self {
+        self.theiler = w;
+        self
+    }
+    /// Set the largest cross-map lag.
+    pub fn with_max_lag(mut self, k: Option<usize>) -> Self {
+        self.max_lag = k;
+        self
+    }
+    /// Set the surrogate count and optional period.
+    pub fn with_surrogates(mut self, count: usize, period: Option<usize>) -> Self {
+        self.surrogates = count;
+        self.period = period;
+        self
+    }
+    /// Set the master seed.
+    pub fn with_seed(mut self, seed: u64) -> Self {
+        self.seed = seed;
+        self
+    }
+
+    /// Check once against the series length and embeddings; one error variant per rule.
+    pub fn validate(
+        &self,
+        n_points: usize,
+        embeddings: &[Embedding],
+    ) -> Result<ValidParams, EngineError> {
+        if self.replicates == 0 {
+            return Err(EngineError::ReplicatesZero);
+        }
+        match &self.library_sizes {
+            LibrarySizes::Auto { count: 0 } => return Err(EngineError::LibraryCountZero),
+            LibrarySizes::Explicit(v) if v.is_empty() => return Err(EngineError::LibraryCountZero),
+            _ => {}
+        }
+        if embeddings.len() < 2 {
+            return Err(EngineError::TooFewSeries {
+                found: embeddings.len(),
+            });
+        }
+        if let Some(p) = self.period
+            && p < 2
+        {
+            return Err(EngineError::PeriodTooShort { period: p });
+        }
+        let mut plans = Vec::with_capacity(embeddings.len());
+        for (i, emb) in embeddings.iter().enumerate() {
+            if emb.e == 0 {
+                return Err(EngineError::EmbeddingDimensionZero);
+            }
+            if emb.tau == 0 {
+                return Err(EngineError::DelayZero);
+            }
+            let theiler = self
+                .theiler
+                .unwrap_or_else(|| default_theiler(emb.e, emb.tau));
+            let usable = n_points
+                .saturating_sub((emb.e - 1) * emb.tau)
+                .saturating_sub(emb.vectors_excluded);
+            // A query needs E+1 neighbours outside its window of 2w+1 points.
+            let needed = emb.e + 2 + 2 * theiler;
+            if usable < needed {
+                return Err(EngineError::SeriesTooShort {
+                    variable: Some(i),
+                    usable,
+                    needed,
+                    e: emb.e,
+                    tau: emb.tau,
+                });
+            }
+            let min = emb.e + 2;
+            let library_sizes = match &self.library_sizes {
+                LibrarySizes::Auto { count } => log_spaced(min, usable, *count),
+                LibrarySizes::Explicit(v) => {
+                    let mut v = v.clone();
+                    v.sort_unstable();
+                    v.dedup();
+                    if let Some(&size) = v.iter().find(|&&s| s < min || s > usable) {
+                        return Err(EngineError::LibrarySizeOutOfRange {
+                            variable: i,
+                            size,
+                            min,
+                            max: usable,
+                        });
+                    }
+                    v
+                }
+            };
+            let max_lag = match self.max_lag {
+                Some(k) => {
+                    if 2 * k >= usable {
+                        return Err(EngineError::LagTooLarge {
+                            variable: i,
+                            max_lag: k,
+                            usable,
+                        });
+                    }
+                    k
+                }
+                None => default_max_lag(emb.e, emb.tau, usable),
+            };
+            plans.push(ResponsePlan {
+                usable,
+                library_sizes,
+                theiler,
+                max_lag,
+            });
+        }
+        Ok(ValidParams {
+            raw: self.clone(),
+            n_points,
+            plans,
+        })
+    }
+}
+
+/// Default largest cross-map lag: `max(E tau, 3)`, at most [`MAX_AUTO_LAG`] and below a quarter
+/// of the usable length (so most points stay predictable at every lag).
+pub fn default_max_lag(e: usize, tau: usize, usable: usize) -> usize {
+    (e * tau).clamp(3, MAX_AUTO_LAG).min(usable / 4)
+}
+
+/// `count` sizes log-spaced from `min` to `max` inclusive, rounded and deduplicated.
+pub fn log_spaced(min: usize, max: usize, count: usize) -> Vec<usize> {
+    if count <= 1 || min >= max {
+        return vec![max];
+    }
+    let (a, b) = ((min as f64).ln(), (max as f64).ln());
+    let mut v: Vec<usize> = (0..count)
+        .map(|i| (a + (b - a) * i as f64 / (count - 1) as f64).exp().round() as usize)
+        .map(|s| s.clamp(min, max))
+        .collect();
+    v.dedup();
+    v
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn emb(e: usize, tau: usize) -> Embedding {
+        Embedding {
+            e,
+            tau,
+            simplex_skill: 0.9,
+            skill_by_e: vec![],
+            vectors_excluded: 0,
+        }
+    }
+
+    #[test]
+    fn auto_sizes_run_from_e_plus_2_to_the_usable_length() {
+        let v = CrossMapParams::default()
+            .validate(1000, &[emb(2, 1), emb(3, 2)])
+            .unwrap();
+        assert_eq!(v.plans[0].library_sizes.first(), Some(&4));
+        assert_eq!(v.plans[0].library_sizes.last(), Some(&999));
+        assert_eq!(v.plans[1].library_sizes.last(), Some(&996));
+        assert_eq!(v.plans[0].library_sizes.len(), 12);
+        assert_eq!(log_spaced(3, 6, 12), vec![3, 4, 5, 6]);
+    }
+
+    #[test]
+    fn each_rule_has_its_own_error_naming_the_option() {
+        let e2 = [emb(2, 1), emb(2, 1)];
+        let p = CrossMapParams::default();
+        let err = p.clone().with_replicates(0).validate(100, &e2).unwrap_err();
+        assert!(
+            matches!(err, EngineError::ReplicatesZero) && err.to_string().contains("replicates")
+        );
+        let err = p.validate(100, &[emb(0, 1), emb(2, 1)]).unwrap_err();
+        assert!(matches!(err, EngineError::EmbeddingDimensionZero));
+        let err = p.validate(100, &[emb(2, 0), emb(2, 1)]).unwrap_err();
+        assert!(matches!(err, EngineError::DelayZero));
+        let err = p
+            .clone()
+            .with_library_sizes(LibrarySizes::Explicit(vec![3, 50]))
+            .validate(100, &e2)
+            .unwrap_err();
+        assert!(matches!(
+            err,
+            EngineError::LibrarySizeOutOfRange {
+                size: 3,
+                min: 4,
+                max: 99,
+                ..
+            }
+        ));
+        let err = p
+            .clone()
+            .with_library_sizes(LibrarySizes::Explicit(vec![100]))
+            .validate(100, &e2)
+            .unwrap_err();
+        assert!(matches!(
+            err,
+            EngineError::LibrarySizeOutOfRange { size: 100, .. }
+        ));
+        let err = p.validate(6, &[emb(3, 2), emb(2, 1)]).unwrap_err();
+        assert!(matches!(
+            err,
+            EngineError::SeriesTooShort {
+                variable: Some(0),
+                ..
+            }
+        ));
+        assert!(err.to_string().contains("longer series"));
+        let err = p
+            .clone()
+            .with_max_lag(Some(50))
+            .validate(100, &e2)
+            .unwrap_err();
+        assert!(matches!(err, EngineError::LagTooLarge { .. }));
+        let err = p.validate(100, &e2[..1]).unwrap_err();
+        assert!(matches!(err, EngineError::TooFewSeries { found: 1 }));
+    }
+}
