@@ -296,4 +296,60 @@ mod tests {
             assert!(s.to_csv_string().contains(",,") || s.to_csv_string().contains(",\n"));
         }
     }
+
+    #[test]
+    fn shipped_specs_parse() {
+        let dir = concat!(env!("CARGO_MANIFEST_DIR"), "/specs");
+        let read = |n: &str| {
+            Spec::from_toml_str(&std::fs::read_to_string(format!("{dir}/{n}")).unwrap()).unwrap()
+        };
+        let default = read("default.toml");
+        assert!((600..=1000).contains(&default.total_count()));
+        assert_eq!(read("small.toml").total_count(), 12);
+        let lab = read("lab-example.toml");
+        assert_eq!(lab.sampling.length, spec::IntRange::new(120, 120));
+        assert_ne!(read("holdout.toml").seed, default.seed);
+    }
+
+    #[test]
+    fn csv_reads_back_to_the_same_values() {
+        let spec = small();
+        for s in simulate(&spec).unwrap().iter().take(4) {
+            let text = s.to_csv_string();
+            let mut lines = text.lines();
+            let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+            assert_eq!(header[0], "t");
+            assert_eq!(
+                &header[1..],
+                s.variables
+                    .iter()
+                    .map(String::as_str)
+                    .collect::<Vec<_>>()
+                    .as_slice()
+            );
+            for (t, line) in lines.enumerate() {
+                let cells: Vec<&str> = line.split(',').collect();
+                assert_eq!(cells[0].parse::<usize>().unwrap(), t);
+                for (v, cell) in cells[1..].iter().enumerate() {
+                    assert_eq!(cell.parse::<f64>().unwrap(), s.series[v][t]);
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn truth_csv_lists_every_system() {
+        let systems = simulate(&small()).unwrap();
+        let text = truth_csv(&systems);
+        let rows: usize = systems.iter().map(|s| s.truth.len()).sum();
+        assert_eq!(text.lines().count(), rows + 1);
+        assert!(text.lines().skip(1).all(|l| {
+            let label = l.rsplit(',').next().unwrap();
+            ["direct", "indirect", "confounded", "independent"].contains(&label)
+        }));
+        let json: serde_json::Value =
+            serde_json::from_str(&resolved_spec_json(&small(), &systems)).unwrap();
+        assert_eq!(json["systems"].as_array().unwrap().len(), systems.len());
+        assert_eq!(json["spec"]["seed"], 20260101);
+    }
 }

@@ -286,7 +286,7 @@ pub(crate) fn integrate(d: &DrawnParams, columns: &[usize]) -> Result<Vec<Vec<f6
         if s.iter().any(|v| !v.is_finite() || v.abs() > BOUND) {
             return Err(Reject::BlowUp);
         }
-        if k >= d.transient && (k - d.transient) % d.thinning == 0 {
+        if k >= d.transient && (k - d.transient).is_multiple_of(d.thinning) {
             for (col, &idx) in out.iter_mut().zip(columns) {
                 col.push(s[idx]);
             }

@@ -222,7 +222,7 @@ spec_table! {
         /// Coupling strength b for ordinary links.
         coupling: Range = Range::new(0.02, 0.3),
         /// Coupling strength for the synchrony structure.
-        strong_coupling: Range = Range::new(0.3, 0.5),
+        strong_coupling: Range = Range::new(0.5, 1.0),
         /// Relative amplitude of forcing on r.
         forcing: Range = Range::new(0.01, 0.04),
         /// Period (iterations) of seasonal forcing.
@@ -334,7 +334,7 @@ spec_table! {
         /// Period (model time) of seasonal forcing.
         seasonal_period: Range = Range::new(50.0, 150.0),
         /// Model time between sampling steps.
-        interval: Range = Range::new(2.0, 5.0),
+        interval: Range = Range::new(1.0, 3.0),
     }
 }
 
