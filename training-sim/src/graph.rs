@@ -97,11 +97,7 @@ impl Graph {
     }
 
     /// True when a directed path leads from `from` to `to`.
-    pub(crate) fn reaches_node(&self, from: usize, to: usize) -> bool {
-        self.reaches(from, to)
-    }
-
-    fn reaches(&self, from: usize, to: usize) -> bool {
+    pub(crate) fn reaches(&self, from: usize, to: usize) -> bool {
         let mut seen = vec![false; self.children.len()];
         let mut stack = vec![from];
         while let Some(v) = stack.pop() {

@@ -370,7 +370,7 @@ mod tests {
             let (g, offset) = graph::Graph::of(&base.drawn);
             let cols = graph::observed_columns(&base.drawn, &offset);
             let dim = base.drawn.family.var_names().len();
-            for u in 0..base.drawn.units.len() {
+            for (u, &off) in offset.iter().enumerate() {
                 let mut d = base.drawn.clone();
                 for v in d.units[u].initial.iter_mut() {
                     *v *= 1.0 + 1e-6;
@@ -379,8 +379,7 @@ mod tests {
                     continue;
                 };
                 for (c, col) in cols.iter().enumerate() {
-                    let reached =
-                        col.1 == u || (0..dim).any(|k| g.reaches_node(offset[u] + k, col.3));
+                    let reached = col.1 == u || (0..dim).any(|k| g.reaches(off + k, col.3));
                     let changed = moved.series[c] != base.series[c];
                     assert_eq!(reached, changed, "{} unit {u} column {}", base.id, col.0);
                     checked += 1;
