@@ -103,6 +103,12 @@ impl System {
         })
     }
 
+    /// Model time between consecutive recorded samples (`interval × thinning`; maps count
+    /// iterations). The CSV's `t` column is the sample index; multiply by this for model time.
+    pub fn sample_interval(&self) -> f64 {
+        self.drawn.interval * self.drawn.thinning as f64
+    }
+
     /// The series as CSV: header `t,<variables>`, `t` the sample index, missing cells empty.
     pub fn to_csv_string(&self) -> String {
         render::system_csv(self)
