@@ -26,8 +26,9 @@ pub struct CountRow {
 pub struct CandidateScore {
     /// Candidate name.
     pub name: String,
-    /// Pooled held-out log-loss of the calibrated probabilities.
-    pub cv_log_loss: f64,
+    /// Pooled held-out log-loss of the calibrated probabilities (absent when no fold could
+    /// be scored).
+    pub cv_log_loss: Option<f64>,
     /// Pooled held-out ROC AUC.
     pub cv_roc_auc: Option<f64>,
     /// Folds scored.
@@ -128,6 +129,10 @@ pub struct ModelCard {
     pub policy: VerdictPolicy,
     /// Quality targets against the full head's validation figures.
     pub targets: Vec<TargetCheck>,
+}
+
+fn opt4(v: Option<f64>) -> String {
+    v.map_or_else(|| "n/a".to_string(), |x| format!("{x:.4}"))
 }
 
 fn opt(v: Option<f64>) -> String {
@@ -251,9 +256,9 @@ impl ModelCard {
             for c in &h.candidates {
                 let _ = writeln!(
                     s,
-                    "| {} | {:.4} | {} | {} | {} |",
+                    "| {} | {} | {} | {} | {} |",
                     c.name,
-                    c.cv_log_loss,
+                    opt4(c.cv_log_loss),
                     opt(c.cv_roc_auc),
                     c.folds_used,
                     c.folds_skipped

@@ -242,11 +242,8 @@ fn choose_calibrator(
 
 /// The whole per-head procedure on one set of rows: returns the fitted head.
 fn fit_pipeline(
-    head: Head,
-    columns: &[usize],
-    x: &[Vec<f64>],
-    y: &[bool],
-    systems: &[&str],
+    (head, columns): (Head, &[usize]),
+    (x, y, systems): (&[Vec<f64>], &[bool], &[&str]),
     cand: &Candidate,
     cfg: &FitConfig,
     seed: u64,
@@ -529,7 +526,9 @@ fn fit_head(
         };
 
     let mut candidates = Vec::new();
-    let mut best: Option<(f64, usize, Vec<f64>, Vec<bool>, Vec<FoldScore>)> = None;
+    // (pooled log-loss, candidate index, held-out p, held-out review, per-fold scores)
+    type Best = (f64, usize, Vec<f64>, Vec<bool>, Vec<FoldScore>);
+    let mut best: Option<Best> = None;
     for (ci, cand) in cfg.candidates.iter().enumerate() {
         let mut p = vec![f64::NAN; x.len()];
         let mut review = vec![false; x.len()];
@@ -543,11 +542,12 @@ fn fit_head(
             }
             let fold_seed = mix(seed, 1000 + (ci as u64) * 100 + fi as u64);
             let (m, _) = fit_pipeline(
-                head,
-                &columns,
-                &take(&x, &train),
-                &take(&y, &train),
-                &take(&systems, &train),
+                (head, &columns),
+                (
+                    &take(&x, &train),
+                    &take(&y, &train),
+                    &take(&systems, &train),
+                ),
                 cand,
                 cfg,
                 fold_seed,
@@ -576,7 +576,7 @@ fn fit_head(
         };
         candidates.push(CandidateScore {
             name: cand.name(),
-            cv_log_loss: ll,
+            cv_log_loss: ll.is_finite().then_some(ll),
             cv_roc_auc: metrics::roc_auc(&pc, &yc),
             folds_used: folds.len() - skipped,
             folds_skipped: skipped,
@@ -598,11 +598,8 @@ fn fit_head(
     let reliability = metrics::reliability_bins(&take(&p_cv, &covered), &take(&y, &covered), 10);
 
     let (model, cal) = fit_pipeline(
-        head,
-        &columns,
-        &x,
-        &y,
-        &systems,
+        (head, &columns),
+        (&x, &y, &systems),
         &cfg.candidates[chosen],
         cfg,
         mix(seed, 99),
@@ -898,6 +895,23 @@ pub(crate) mod tests {
         let (v, r) = decide(&pr, &QualityFlags::default(), &m.default_policy());
         assert_eq!(v, Verdict::Review);
         assert!(r.contains(&crate::Reason::Unfamiliar));
+    }
+
+    #[test]
+    fn one_family_few_systems_uses_system_folds_and_cross_fit() {
+        // Three systems leave no room for a held-out calibration split.
+        let set = synthetic(9, 1, 3);
+        let m = fit(&set, &FitConfig::default()).unwrap();
+        let h = &m.card().heads[0];
+        assert!(h.validation.starts_with("grouped"), "{}", h.validation);
+        assert!(
+            h.calibration_data.starts_with("cross-fitted"),
+            "{}",
+            h.calibration_data
+        );
+        assert!(m.curve_only.is_none());
+        let p = m.predict(&set.feature_names, &set.rows[1]).unwrap();
+        assert!(p.p_causal > 0.0 && p.p_causal < 1.0);
     }
 
     #[test]

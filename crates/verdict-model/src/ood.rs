@@ -122,14 +122,12 @@ impl OodModel {
     pub fn distance(&self, row: &[f64]) -> f64 {
         let d = self.mean.len();
         let c: Vec<f64> = row.iter().zip(&self.mean).map(|(v, m)| v - m).collect();
-        let mut s = 0.0;
-        for i in 0..d {
-            let mut t = 0.0;
-            for j in 0..d {
-                t += self.precision[i * d + j] * c[j];
-            }
-            s += c[i] * t;
-        }
+        let s: f64 = self
+            .precision
+            .chunks(d.max(1))
+            .zip(&c)
+            .map(|(prow, ci)| ci * prow.iter().zip(&c).map(|(a, b)| a * b).sum::<f64>())
+            .sum();
         s.max(0.0).sqrt()
     }
 
