@@ -541,7 +541,7 @@ fn fit_head(
                 continue;
             }
             let fold_seed = mix(seed, 1000 + (ci as u64) * 100 + fi as u64);
-            let (m, _) = fit_pipeline(
+            let fitted = fit_pipeline(
                 (head, &columns),
                 (
                     &take(&x, &train),
@@ -551,7 +551,16 @@ fn fit_head(
                 cand,
                 cfg,
                 fold_seed,
-            )?;
+            );
+            // A fold whose training side cannot be calibrated is skipped, not fatal.
+            let m = match fitted {
+                Ok((m, _)) => m,
+                Err(ModelError::NotEnoughRows { .. }) => {
+                    skipped += 1;
+                    continue;
+                }
+                Err(e) => return Err(e),
+            };
             let (pt, dt) = m.score(&take(&x, test))?;
             let (lo, hi) = cfg.policy.band;
             for ((&i, pi), di) in test.iter().zip(&pt).zip(&dt) {

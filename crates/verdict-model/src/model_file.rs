@@ -191,6 +191,33 @@ mod tests {
     }
 
     #[test]
+    fn tree_ensemble_bundle_round_trips_deterministically() {
+        use crate::fit::tests::synthetic;
+        use crate::forest::ForestParams;
+        use crate::{Candidate, FitConfig, fit};
+        let set = synthetic(2, 2, 4);
+        let cfg = FitConfig {
+            candidates: vec![Candidate::Forest(ForestParams {
+                trees: 15,
+                max_depth: 4,
+                min_leaf: 2,
+                feature_fraction: 0.75,
+            })],
+            ..FitConfig::default()
+        };
+        let m = fit(&set, &cfg).unwrap();
+        assert!(matches!(m.full.scorer, crate::fit::Scorer::Forest(_)));
+        let bytes = m.to_bytes().unwrap();
+        assert_eq!(bytes, fit(&set, &cfg).unwrap().to_bytes().unwrap());
+        let back = ModelBundle::from_bytes(&bytes).unwrap();
+        let complete: Vec<Option<f64>> = set.rows[0].iter().map(|v| v.or(Some(0.0))).collect();
+        assert_eq!(
+            m.predict(&set.feature_names, &complete).unwrap(),
+            back.predict(&set.feature_names, &complete).unwrap()
+        );
+    }
+
+    #[test]
     fn same_seed_same_bytes_other_seed_other_bytes() {
         let a = small_bundle(3).0.to_bytes().unwrap();
         let b = small_bundle(3).0.to_bytes().unwrap();
