@@ -1,12 +1,69 @@
-//! Classifier over ensemble features. INTERFACE SKETCH: the classifier work replaces every
-//! `todo!` and may add items, keeping these names and shapes (the pipeline codes against them).
-//! The crate knows features only through names and a schema hash handed to it.
+//! Calibrated causal / non-causal classifier over ensemble features, with review verdicts,
+//! versioned model files and model cards.
+//!
+//! The crate knows features only through the names and the schema hash handed to it: a
+//! [`TrainingSet`] carries them at fit time and [`ModelBundle::predict`] checks them again.
+//!
+//! A bundle holds two heads: a *full* head over every column and a *curve-only* head over a
+//! subset named in [`FitConfig::curve_only_names`], used when lag, surrogate or context features
+//! are unavailable. Missing values are never imputed: a row goes to the head whose columns it
+//! has, or prediction fails with [`ModelError::MissingFeatures`].
+//!
+//! The positive class ("causal") is [`FineLabel::Direct`] or [`FineLabel::Indirect`]: the
+//! driver's influence reaches the response, by any route (see [`FineLabel::is_causal`]).
+//!
+//! ```
+//! use verdict_model::{fit, decide, FineLabel, FitConfig, ModelBundle, QualityFlags, TrainingSet};
+//!
+//! // Two features; the first separates the classes, three families of four systems each.
+//! let mut set = TrainingSet {
+//!     feature_names: vec!["skill_gain".into(), "noise".into()],
+//!     schema_hash: "demo-schema".into(),
+//!     ..Default::default()
+//! };
+//! for i in 0..120 {
+//!     let causal = i % 2 == 0;
+//!     let x = if causal { 1.0 } else { -1.0 } + ((i * 37 % 17) as f64 / 17.0 - 0.5) * 1.5;
+//!     set.rows.push(vec![Some(x), Some((i * 13 % 7) as f64)]);
+//!     set.labels.push(if causal { FineLabel::Direct } else { FineLabel::Independent });
+//!     set.families.push(format!("family{}", i % 3));
+//!     set.systems.push(format!("system{}", i % 12));
+//! }
+//! let cfg = FitConfig { curve_only_names: vec!["skill_gain".into()], ..FitConfig::default() };
+//! let model = fit(&set, &cfg).unwrap();
+//!
+//! let bytes = model.to_bytes().unwrap();
+//! let model = ModelBundle::from_bytes(&bytes).unwrap();
+//! let pred = model.predict(&set.feature_names, &[Some(2.0), Some(3.0)]).unwrap();
+//! let (verdict, reasons) = decide(&pred, &QualityFlags::default(), &model.default_policy());
+//! assert!(pred.p_causal > 0.5);
+//! println!("{} {:?}", verdict.as_str(), reasons);
+//! ```
 #![deny(missing_docs)]
 
 use serde::{Deserialize, Serialize};
 
+mod bundle;
+pub mod calibrate;
+pub mod card;
+mod error;
+pub mod fit;
+pub mod forest;
+pub mod logistic;
+pub mod metrics;
+pub mod model_file;
+pub mod ood;
+pub mod standardise;
+pub mod verdict;
+
+pub use card::ModelCard;
+pub use error::ModelError;
+pub use fit::{Candidate, FitConfig, fit};
+pub use model_file::{FORMAT_VERSION, MAGIC};
+pub use verdict::{Reason, VerdictPolicy, decide, decide_unusable, reasons_field};
+
 /// Fine ground-truth label of an ordered pair (from the simulator).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
 pub enum FineLabel {
     /// The driver enters the response's dynamics directly.
     Direct,
@@ -18,6 +75,45 @@ pub enum FineLabel {
     Independent,
 }
 
+/// The labels the classifier trains as causal: the driver's influence reaches the response,
+/// directly or through other variables. Confounded and independent pairs are non-causal.
+pub const CAUSAL_LABELS: [FineLabel; 2] = [FineLabel::Direct, FineLabel::Indirect];
+
+impl FineLabel {
+    /// All four labels in the order used by [`Prediction::fine`].
+    pub const ALL: [FineLabel; 4] = [
+        FineLabel::Direct,
+        FineLabel::Indirect,
+        FineLabel::Confounded,
+        FineLabel::Independent,
+    ];
+
+    /// Whether the label counts as causal (see [`CAUSAL_LABELS`]).
+    pub fn is_causal(self) -> bool {
+        CAUSAL_LABELS.contains(&self)
+    }
+
+    /// The word used in `truth.csv`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            FineLabel::Direct => "direct",
+            FineLabel::Indirect => "indirect",
+            FineLabel::Confounded => "confounded",
+            FineLabel::Independent => "independent",
+        }
+    }
+
+    /// Position in [`FineLabel::ALL`].
+    pub fn index(self) -> usize {
+        match self {
+            FineLabel::Direct => 0,
+            FineLabel::Indirect => 1,
+            FineLabel::Confounded => 2,
+            FineLabel::Independent => 3,
+        }
+    }
+}
+
 /// Rows for fitting: one per ordered pair.
 #[derive(Debug, Clone, Default)]
 pub struct TrainingSet {
@@ -27,8 +123,7 @@ pub struct TrainingSet {
     pub schema_hash: String,
     /// Feature rows; `None` = unavailable.
     pub rows: Vec<Vec<Option<f64>>>,
-    /// Fine labels; causal = `Direct` (an indirect route is also causal: the classifier
-    /// work documents which convention it trains on).
+    /// Fine labels; causal = `Direct` or `Indirect` (see [`CAUSAL_LABELS`]).
     pub labels: Vec<FineLabel>,
     /// System family of each row (for leave-one-family-out validation).
     pub families: Vec<String>,
@@ -56,6 +151,15 @@ impl Verdict {
             Verdict::Review => "review",
         }
     }
+
+    /// Sort key for `labels.csv`, which lists review rows first, then causal, then non-causal.
+    pub fn sort_rank(self) -> u8 {
+        match self {
+            Verdict::Review => 0,
+            Verdict::Causal => 1,
+            Verdict::NonCausal => 2,
+        }
+    }
 }
 
 /// Data-quality facts the pipeline computes from the series and ensembles.
@@ -67,4 +171,81 @@ pub struct QualityFlags {
     pub weak_self_forecast: bool,
     /// Both directions converge and the lag profile peaks at or after lag 0 (synchrony).
     pub synchrony_suspected: bool,
+}
+
+/// Which of the bundle's two heads produced a prediction.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub enum Head {
+    /// The head trained on every feature column.
+    Full,
+    /// The head trained on the curve-shape columns only.
+    CurveOnly,
+}
+
+impl Head {
+    /// Short name used in cards and files.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Head::Full => "full",
+            Head::CurveOnly => "curve-only",
+        }
+    }
+}
+
+/// The model's answer for one row.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Prediction {
+    /// Calibrated probability that the pair is causal (see [`CAUSAL_LABELS`]).
+    pub p_causal: f64,
+    /// The head that answered.
+    pub head: Head,
+    /// Regularised Mahalanobis distance of the standardised row from the head's training rows.
+    pub ood_score: f64,
+    /// Whether `ood_score` exceeds the head's stored training percentile.
+    pub ood: bool,
+    /// Probabilities of the four fine labels in [`FineLabel::ALL`] order, when the fine head
+    /// exists and the full head answered. Not calibrated.
+    pub fine: Option<[f64; 4]>,
+}
+
+/// Name and hash of the simulator spec a model was trained from.
+#[derive(Debug, Clone, PartialEq, Eq, Default, Serialize, Deserialize)]
+pub struct SpecIdentity {
+    /// Spec name, e.g. the file stem.
+    pub name: String,
+    /// Hash of the spec's contents (the caller's choice of digest, as hex).
+    pub hash: String,
+}
+
+/// SHA-256 of `bytes` as lowercase hex; a convenience for spec and input checksums.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    use sha2::{Digest, Sha256};
+    let digest = Sha256::digest(bytes);
+    digest.iter().map(|b| format!("{b:02x}")).collect()
+}
+
+pub use bundle::{FineHead, ModelBundle};
+
+#[cfg(test)]
+pub(crate) mod tests_support {
+    //! Shared helpers for unit tests: the stored scikit-learn fixture.
+
+    /// The fixture written by `tests/reference/classifier_sklearn.py`.
+    pub fn fixture() -> serde_json::Value {
+        let path = concat!(
+            env!("CARGO_MANIFEST_DIR"),
+            "/../../tests/reference/fixtures/classifier_sklearn.json"
+        );
+        let text = std::fs::read_to_string(path).expect("fixture present");
+        serde_json::from_str(&text).expect("fixture is JSON")
+    }
+
+    /// A JSON array of numbers as floats.
+    pub fn floats(v: &serde_json::Value) -> Vec<f64> {
+        v.as_array()
+            .expect("array")
+            .iter()
+            .map(|x| x.as_f64().expect("number"))
+            .collect()
+    }
 }
