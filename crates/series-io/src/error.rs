@@ -504,12 +504,25 @@ pub(crate) fn show_names<S: AsRef<str>>(names: &[S]) -> String {
     let mut parts: Vec<String> = names
         .iter()
         .take(MAX_NAMES)
-        .map(|n| format!("`{}`", n.as_ref()))
+        .map(|n| format!("`{}`", escape_controls(n.as_ref())))
         .collect();
     if names.len() > MAX_NAMES {
         parts.push(format!("and {} more", names.len() - MAX_NAMES));
     }
     parts.join(", ")
+}
+
+/// Escape control characters so user text cannot break a message into several lines.
+pub(crate) fn escape_controls(text: &str) -> String {
+    text.chars()
+        .map(|c| {
+            if c.is_control() {
+                c.escape_debug().to_string()
+            } else {
+                c.to_string()
+            }
+        })
+        .collect()
 }
 
 #[cfg(test)]
@@ -531,5 +544,6 @@ mod tests {
         let shown = show_names(&names);
         assert!(shown.ends_with("and 8 more"), "{shown}");
         assert_eq!(show_names::<&str>(&[]), "none");
+        assert_eq!(show_names(&["a\nb"]), "`a\\nb`");
     }
 }

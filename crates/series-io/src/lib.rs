@@ -29,6 +29,8 @@ mod cell;
 pub mod checksum;
 mod curves;
 mod error;
+#[doc(hidden)]
+pub mod fuzzing;
 mod guard;
 mod output;
 mod records;
