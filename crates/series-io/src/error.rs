@@ -105,6 +105,21 @@ pub enum InputError {
         limit: usize,
     },
 
+    /// The header has more columns than the configured limit.
+    #[error(
+        "{file}: row 1 (header) has {found} columns, more than the limit of {limit}. Check \
+         that row 1 is a header and that the file is comma-separated, or raise the column \
+         limit"
+    )]
+    TooManyColumns {
+        /// Input name.
+        file: String,
+        /// Columns found.
+        found: usize,
+        /// The limit.
+        limit: usize,
+    },
+
     /// A row has a different number of fields from the header.
     #[error("{file}: row {row} has {found} fields but the header (row 1) has {expected}. {hint}")]
     Ragged {

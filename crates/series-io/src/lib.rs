@@ -47,8 +47,8 @@ pub use output::{
     CsvTable, Export, JsonDocument, OutputDir, TextDocument, format_f64, write_csv_rows,
 };
 pub use table::{
-    DEFAULT_MAX_CELLS, DEFAULT_MAX_LINE_BYTES, DEFAULT_MAX_ROWS, ReadOptions, read_series,
-    read_series_from,
+    DEFAULT_MAX_CELLS, DEFAULT_MAX_COLUMNS, DEFAULT_MAX_LINE_BYTES, DEFAULT_MAX_ROWS, ReadOptions,
+    read_series, read_series_from,
 };
 
 /// A validated table of series read from CSV.

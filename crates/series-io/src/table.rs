@@ -15,6 +15,8 @@ use crate::error::{InputError, show_cell, show_names};
 pub const DEFAULT_MAX_ROWS: usize = 5_000_000;
 /// Default limit on numeric cells, rows times series (100 million: 800 MB of values).
 pub const DEFAULT_MAX_CELLS: usize = 100_000_000;
+/// Default limit on header columns (100,000: names and their index stay a few MB).
+pub const DEFAULT_MAX_COLUMNS: usize = 100_000;
 /// Default limit on one record's bytes (64 MiB).
 pub const DEFAULT_MAX_LINE_BYTES: u64 = 64 * 1024 * 1024;
 
@@ -28,6 +30,8 @@ pub struct ReadOptions {
     pub max_rows: usize,
     /// Most numeric cells (data rows times series columns) accepted.
     pub max_cells: usize,
+    /// Most header columns accepted.
+    pub max_columns: usize,
     /// Most bytes in one record (one line, or several when a quoted field spans lines).
     pub max_line_bytes: u64,
 }
@@ -38,6 +42,7 @@ impl Default for ReadOptions {
             time_column: None,
             max_rows: DEFAULT_MAX_ROWS,
             max_cells: DEFAULT_MAX_CELLS,
+            max_columns: DEFAULT_MAX_COLUMNS,
             max_line_bytes: DEFAULT_MAX_LINE_BYTES,
         }
     }
@@ -62,6 +67,12 @@ impl ReadOptions {
         self
     }
 
+    /// Set the header-column limit.
+    pub fn with_max_columns(mut self, max_columns: usize) -> Self {
+        self.max_columns = max_columns;
+        self
+    }
+
     /// Set the per-record byte limit.
     pub fn with_max_line_bytes(mut self, max_line_bytes: u64) -> Self {
         self.max_line_bytes = max_line_bytes;
@@ -83,6 +94,36 @@ pub fn read_series(path: &Path, opts: &ReadOptions) -> Result<SeriesTable, Input
 ///
 /// Rows are streamed: memory holds one record plus one `f64` per cell, and the limits in
 /// `opts` stop oversized input early. The SHA-256 covers every input byte, BOM included.
+///
+/// # Format and rules (each broken rule is the [`InputError`] variant named)
+///
+/// - Comma-separated, RFC 4180 quoting (`"a,b"`, `""` for a quote, quoted line breaks);
+///   LF, CRLF or CR line ends; blank lines skipped; a leading UTF-8 BOM dropped; spaces
+///   around names and numbers ignored. Rows are numbered as in the file, header = row 1.
+/// - A header is required ([`Empty`](InputError::Empty)), then at least one data row
+///   ([`HeaderOnly`](InputError::HeaderOnly)). All text must be UTF-8
+///   ([`NotUtf8`](InputError::NotUtf8)).
+/// - Names: non-empty ([`EmptyColumnName`](InputError::EmptyColumnName)), distinct
+///   ([`DuplicateColumn`](InputError::DuplicateColumn)), no control characters
+///   ([`ControlInName`](InputError::ControlInName)), at most `max_columns`
+///   ([`TooManyColumns`](InputError::TooManyColumns)).
+/// - Time axis: the first column if named `t` or `time` (any case), or the column named by
+///   `time_column` ([`TimeColumnNotFound`](InputError::TimeColumnNotFound)); every value
+///   present ([`TimeMissing`](InputError::TimeMissing)) and strictly increasing
+///   ([`TimeNotIncreasing`](InputError::TimeNotIncreasing)).
+/// - At least two series columns ([`TooFewSeries`](InputError::TooFewSeries)).
+/// - Every row has the header's field count ([`Ragged`](InputError::Ragged)).
+/// - Cells: a number as Rust's `f64` parser reads it (`1.5`, `-2e-3`), or missing: empty,
+///   `NA`, `NaN`, `null` (any case) read as NaN and are counted per series. Anything else is
+///   [`NotNumeric`](InputError::NotNumeric), with a hint for thousands separators, decimal
+///   commas, dates and percent signs; `Inf` and overflowing numbers are
+///   [`Infinite`](InputError::Infinite).
+/// - Each series: at least two present values ([`TooFewValues`](InputError::TooFewValues)),
+///   not all equal ([`ConstantSeries`](InputError::ConstantSeries)).
+/// - Limits: `max_rows` data rows ([`TooManyRows`](InputError::TooManyRows)), `max_cells`
+///   values ([`TooManyCells`](InputError::TooManyCells)), `max_line_bytes` per record
+///   ([`RecordTooLong`](InputError::RecordTooLong)), checked while reading so oversized
+///   input is never buffered whole.
 pub fn read_series_from(
     reader: impl Read,
     source_name: &str,
@@ -94,6 +135,13 @@ pub fn read_series_from(
 
     if !csv.next(&mut record)? {
         return Err(InputError::Empty { file });
+    }
+    if record.len() > opts.max_columns {
+        return Err(InputError::TooManyColumns {
+            file,
+            found: record.len(),
+            limit: opts.max_columns,
+        });
     }
     let header = decode_header(&file, &record)?;
     let layout = Layout::from_header(&file, &header, opts.time_column.as_deref())?;

@@ -146,6 +146,26 @@ rejects!(
 );
 
 #[test]
+fn very_wide_header_is_refused_before_names_are_stored() {
+    let header: Vec<String> = (0..200_000).map(|i| format!("v{i}")).collect();
+    let input = format!("{}\n", header.join(","));
+    let err = read(input.as_bytes()).unwrap_err();
+    assert!(
+        matches!(err, InputError::TooManyColumns { found: 200_000, .. }),
+        "{err:?}"
+    );
+    assert_message(
+        &err,
+        &[
+            "row 1",
+            "200000 columns",
+            "limit of 100000",
+            "comma-separated",
+        ],
+    );
+}
+
+#[test]
 fn requested_time_column_missing() {
     let opts = ReadOptions::default().with_time_column("date");
     let err = read_series_from(&b"t,a,b\n0,1,2\n"[..], FILE, &opts).unwrap_err();
