@@ -24,6 +24,26 @@ pub trait Export {
 }
 
 /// An output directory whose files are all written atomically.
+///
+/// ```
+/// use series_io::{CurveRow, CurvesCsv, OutputDir, write_csv_rows};
+///
+/// let dir = std::env::temp_dir().join(format!("series-io-doc-{}", std::process::id()));
+/// let out = OutputDir::create(&dir)?;
+/// let rows = vec![CurveRow {
+///     driver: "x".into(), response: "y".into(), library_size: 10, replicate: 0, skill: 0.5,
+/// }];
+/// out.export(&CurvesCsv(&rows))?;
+/// out.write("embedding.csv", |w| {
+///     write_csv_rows(w, &["variable", "E"], [vec!["x".to_string(), "3".to_string()]])
+/// })?;
+/// assert_eq!(
+///     std::fs::read_to_string(dir.join("curves.csv")).unwrap(),
+///     "driver,response,library_size,replicate,skill\nx,y,10,0,0.5\n"
+/// );
+/// # std::fs::remove_dir_all(&dir).unwrap();
+/// # Ok::<(), series_io::OutputError>(())
+/// ```
 #[derive(Debug, Clone)]
 pub struct OutputDir {
     dir: PathBuf,
