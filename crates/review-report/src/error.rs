@@ -27,7 +27,7 @@ pub enum ReportError {
     /// The same variable name appears twice in the variable list.
     #[error("variable {0:?} is listed twice; matrix axes must be unique")]
     DuplicateVariable(String),
-    /// A probability is not a number in [0, 1].
+    /// A probability is neither in [0, 1] nor NaN (NaN marks an unscored pair).
     #[error("pair {driver} -> {response}: p_causal = {value} is not in [0, 1]")]
     InvalidProbability {
         /// Driver of the offending pair.

@@ -52,7 +52,7 @@ fn validate(data: &ReportData) -> Result<BTreeMap<(&str, &str), usize>, ReportEr
                 response: p.response.clone(),
             });
         }
-        if !(0.0..=1.0).contains(&p.p_causal) {
+        if !(p.p_causal.is_nan() || (0.0..=1.0).contains(&p.p_causal)) {
             return Err(ReportError::InvalidProbability {
                 driver: p.driver.clone(),
                 response: p.response.clone(),
@@ -94,8 +94,13 @@ fn validate(data: &ReportData) -> Result<BTreeMap<(&str, &str), usize>, ReportEr
 }
 
 /// Probability as shown everywhere on the page.
+/// A probability; NaN marks a pair no model head could score (shown as "n/a").
 fn fmt_p(p: f64) -> String {
-    format!("{p:.2}")
+    if p.is_nan() {
+        "n/a".to_string()
+    } else {
+        format!("{p:.2}")
+    }
 }
 
 /// A feature or table value: compact, deterministic, and explicit about missing values.
@@ -287,7 +292,7 @@ fn summary(
                         p.verdict.as_str(),
                         pair_anchor(rank[k]),
                         p.verdict.glyph(),
-                        fmt_p(p.p_causal).trim_start_matches('0')
+                        fmt_p(p.p_causal).trim_start_matches('0').to_string()
                     );
                 }
             }
