@@ -188,6 +188,15 @@ fn both_classes(idx: &[usize], y: &[bool]) -> bool {
     pos > 0 && pos < idx.len()
 }
 
+/// Indices `0..n` not in `test` (linear time, for large training sets).
+fn complement(n: usize, test: &[usize]) -> Vec<usize> {
+    let mut held = vec![false; n];
+    for &i in test {
+        held[i] = true;
+    }
+    (0..n).filter(|&i| !held[i]).collect()
+}
+
 fn take<T: Clone>(v: &[T], idx: &[usize]) -> Vec<T> {
     idx.iter().map(|&i| v[i].clone()).collect()
 }
@@ -294,7 +303,7 @@ fn fit_pipeline(
             let folds = system_folds(systems, 5, mix(seed, 2));
             let mut raw = vec![f64::NAN; x.len()];
             for (f, test) in folds.iter().enumerate() {
-                let train: Vec<usize> = (0..x.len()).filter(|i| !test.contains(i)).collect();
+                let train = complement(x.len(), test);
                 if !both_classes(&train, y) {
                     continue;
                 }
@@ -535,7 +544,7 @@ fn fit_head(
         let mut fold_scores = Vec::new();
         let mut skipped = 0;
         for (fi, test) in folds.iter().enumerate() {
-            let train: Vec<usize> = (0..x.len()).filter(|i| !test.contains(i)).collect();
+            let train = complement(x.len(), test);
             if train.len() < cfg.min_rows || !both_classes(&train, &y) {
                 skipped += 1;
                 continue;
