@@ -12,11 +12,19 @@
 #![deny(missing_docs)]
 
 mod assemble;
+mod judge;
 mod quality;
+mod report_view;
+mod training;
 
 
 pub use assemble::{PairRecord, assemble, assemble_curves};
+pub use judge::{Judgement, judge, rule_of_thumb};
 pub use quality::{QualityThresholds, quality_flags};
+pub use report_view::{KEY_FEATURES, RunFacts, report_view};
+pub use training::{
+    AnalysedSystem, SkippedSystem, analyse_systems, fine_label, series_of, training_set,
+};
 
 
 use crossmap_engine::{CrossMapParams, Embedding, EmbeddingSettings, PairEnsemble, ValidParams};

@@ -1,0 +1,110 @@
+//! Fill the report's view model from the pipeline's results.
+
+use crossmap_engine::Embedding;
+use review_report::{EmbeddingRow, PairView, ReportData, VerdictKind};
+use verdict_model::Verdict;
+
+use crate::{Judgement, PairRecord};
+
+/// Features shown beside each pair's plots, in this order.
+pub const KEY_FEATURES: [&str; 9] = [
+    "skill_final_mean",
+    "skill_gain",
+    "fit_asymptote",
+    "rev_skill_final_mean",
+    "lag_best",
+    "surrogate_percentile",
+    "simplex_response",
+    "correlation",
+    "spread_sd_large",
+];
+
+/// What the report says about the run itself.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct RunFacts {
+    /// Input file name as given.
+    pub input_name: String,
+    /// SHA-256 of the input bytes.
+    pub input_sha256: Option<String>,
+    /// Tool version.
+    pub tool_version: String,
+    /// Model identity line.
+    pub model_identity: String,
+    /// Run parameters, in display order.
+    pub params: Vec<(String, String)>,
+    /// Run-level notes.
+    pub notes: Vec<String>,
+}
+
+/// Report view of a run. `embeddings` may be empty (ensembles computed elsewhere).
+pub fn report_view(
+    facts: &RunFacts,
+    names: &[String],
+    embeddings: &[Embedding],
+    records: &[PairRecord],
+    judgements: &[Judgement],
+) -> ReportData {
+    let index: Vec<Option<usize>> = KEY_FEATURES
+        .iter()
+        .map(|n| ensemble_features::index_of(n))
+        .collect();
+    let pairs = records
+        .iter()
+        .zip(judgements)
+        .map(|(rec, j)| PairView {
+            driver: names[rec.driver].clone(),
+            response: names[rec.response].clone(),
+            p_causal: j.p_causal,
+            verdict: match j.verdict {
+                Verdict::Causal => VerdictKind::Causal,
+                Verdict::NonCausal => VerdictKind::NonCausal,
+                Verdict::Review => VerdictKind::Review,
+            },
+            reasons: j
+                .reasons
+                .iter()
+                .map(|r| (r.code().to_string(), r.explain().to_string()))
+                .collect(),
+            library_sizes: rec.evidence.forward.library_sizes.clone(),
+            forward: rec.evidence.forward.skills.clone(),
+            reverse: rec
+                .evidence
+                .reverse
+                .as_ref()
+                .filter(|r| r.library_sizes == rec.evidence.forward.library_sizes)
+                .map(|r| r.skills.clone()),
+            lag_profile: rec
+                .evidence
+                .lag
+                .as_ref()
+                .map(|l| (l.lags.clone(), l.skills.clone())),
+            surrogate_skills: rec.evidence.surrogate_skills.clone(),
+            key_features: KEY_FEATURES
+                .iter()
+                .zip(&index)
+                .map(|(name, k)| (name.to_string(), k.and_then(|k| rec.features[k])))
+                .collect(),
+        })
+        .collect();
+    ReportData {
+        title: format!("ccm-triage report: {}", facts.input_name),
+        input_name: facts.input_name.clone(),
+        input_sha256: facts.input_sha256.clone(),
+        tool_version: facts.tool_version.clone(),
+        model_identity: facts.model_identity.clone(),
+        params: facts.params.clone(),
+        variables: names.to_vec(),
+        embeddings: names
+            .iter()
+            .zip(embeddings)
+            .map(|(v, e)| EmbeddingRow {
+                variable: v.clone(),
+                e: e.e,
+                tau: e.tau,
+                simplex_skill: e.simplex_skill,
+            })
+            .collect(),
+        pairs,
+        notes: facts.notes.clone(),
+    }
+}
