@@ -6,6 +6,9 @@ use serde::{Deserialize, Serialize};
 /// library sizes needs a few tens of points (common practice).
 pub const MIN_LENGTH: u64 = 30;
 
+/// Longest series a spec may ask for (keeps a typo from exhausting memory).
+pub const MAX_LENGTH: u64 = 1_000_000;
+
 /// Errors found while reading or checking a spec.
 #[derive(Debug, thiserror::Error)]
 #[non_exhaustive]
@@ -517,7 +520,21 @@ impl Spec {
                 value: s.length.lo,
             });
         }
+        if s.length.hi > MAX_LENGTH {
+            c.fail(SpecError::OutOfRange {
+                key: "sampling.length".into(),
+                value: s.length.hi as f64,
+                allowed: "[30, 1000000]",
+            });
+        }
         c.int("sampling.thinning", s.thinning);
+        if s.thinning.hi > 1000 {
+            c.fail(SpecError::OutOfRange {
+                key: "sampling.thinning".into(),
+                value: s.thinning.hi as f64,
+                allowed: "[1, 1000]",
+            });
+        }
         if s.thinning.lo == 0 {
             c.fail(SpecError::OutOfRange {
                 key: "sampling.thinning".into(),
@@ -750,6 +767,18 @@ mod tests {
         )
         .unwrap_err();
         assert!(matches!(e, SpecError::TooShort { value: 10, .. }), "{e}");
+    }
+
+    #[test]
+    fn huge_length_is_rejected() {
+        let e = Spec::from_toml_str(
+            "seed = 1\n[sampling]\nlength = [100, 10000000]\n[families.ricker]\ncount = 1\n",
+        )
+        .unwrap_err();
+        assert!(
+            matches!(e, SpecError::OutOfRange { ref key, .. } if key == "sampling.length"),
+            "{e}"
+        );
     }
 
     #[test]
