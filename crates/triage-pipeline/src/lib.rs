@@ -148,7 +148,11 @@ pub fn analyse(
             .collect()
     };
     let pairs = assemble(series, &embeddings, &ensembles, &settings.quality);
-    Ok(Analysis { embeddings, pairs })
+    Ok(Analysis {
+        embeddings,
+        params,
+        pairs,
+    })
 }
 
 /// The result of stages 1-3.
@@ -156,6 +160,9 @@ pub fn analyse(
 pub struct Analysis {
     /// Embedding of each variable, in column order.
     pub embeddings: Vec<Embedding>,
+    /// The validated cross-map parameters (library sizes, Theiler window and lags resolved per
+    /// response manifold).
+    pub params: ValidParams,
     /// One record per ordered pair, ordered by (driver, response) column index.
     pub pairs: Vec<PairRecord>,
 }

@@ -1,0 +1,93 @@
+//! `demo`: the bundled scenario, scanned with the built-in model, checked against its answer key.
+
+use anyhow::Context;
+use series_io::OutputDir;
+use verdict_model::Verdict;
+
+use crate::cli::{DemoArgs, EngineArgs, ScanArgs, VerdictArgs};
+
+const DATA: &str = include_str!("../../demo-data/lagoon.csv");
+const KEY: &str = include_str!("../../demo-data/answer-key.csv");
+const STORY: &str = include_str!("../../demo-data/README.md");
+
+pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
+    let out = OutputDir::create(&args.out)?;
+    let data = out.write_bytes("lagoon.csv", DATA.as_bytes())?;
+    out.write_bytes("answer-key.csv", KEY.as_bytes())?;
+    let scan = ScanArgs {
+        data,
+        out: args.out.join("scan"),
+        time_column: None,
+        engine: default_engine(),
+        verdict: VerdictArgs {
+            model: None,
+            review_band: "0.25,0.75".into(),
+        },
+    };
+    let first = STORY.lines().find(|l| !l.trim().is_empty() && !l.starts_with('#'));
+    if let Some(line) = first {
+        println!("{line}\n");
+    }
+    let outcome = super::scan::run_scan(&scan, quiet)?;
+    let key = answer_key()?;
+    let mut table = String::new();
+    let (mut agree, mut wrong, mut review) = (0, 0, 0);
+    table.push_str(&format!(
+        "{:<28} {:>8}  {:<11} {:<12}\n",
+        "driver -> response", "p_causal", "verdict", "answer key"
+    ));
+    for (rec, j) in outcome.records.iter().zip(&outcome.judgements) {
+        let (d, r) = (&outcome.names[rec.driver], &outcome.names[rec.response]);
+        let truth = key
+            .iter()
+            .find(|(kd, kr, _)| kd == d && kr == r)
+            .map(|(_, _, l)| l.as_str())
+            .with_context(|| format!("answer key has no row for {d} -> {r}"))?;
+        let causal = matches!(truth, "direct" | "indirect");
+        match j.verdict {
+            Verdict::Review => review += 1,
+            Verdict::Causal if causal => agree += 1,
+            Verdict::NonCausal if !causal => agree += 1,
+            _ => wrong += 1,
+        }
+        table.push_str(&format!(
+            "{:<28} {:>8.2}  {:<11} {:<12}\n",
+            format!("{d} -> {r}"),
+            j.p_causal,
+            j.verdict.as_str(),
+            truth
+        ));
+    }
+    println!("{table}");
+    println!(
+        "{} pairs: {agree} agree with the answer key, {wrong} disagree, {review} sent to review",
+        outcome.records.len()
+    );
+    println!(
+        "report: {}",
+        args.out.join("scan").join("report.html").display()
+    );
+    println!("{}", super::scan::CAUTION_LINE);
+    Ok(())
+}
+
+fn default_engine() -> EngineArgs {
+    use clap::Parser;
+    #[derive(Parser)]
+    struct Defaults {
+        #[command(flatten)]
+        engine: EngineArgs,
+    }
+    Defaults::parse_from(["defaults"]).engine
+}
+
+fn answer_key() -> anyhow::Result<Vec<(String, String, String)>> {
+    let mut rows = Vec::new();
+    for line in KEY.lines().skip(1).filter(|l| !l.trim().is_empty()) {
+        let f: Vec<&str> = line.split(',').collect();
+        anyhow::ensure!(f.len() >= 3, "answer key row `{line}` is malformed");
+        let k = f.len();
+        rows.push((f[k - 3].to_string(), f[k - 2].to_string(), f[k - 1].to_string()));
+    }
+    Ok(rows)
+}

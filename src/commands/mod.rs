@@ -1,0 +1,11 @@
+//! One module per group of subcommands; each reads its inputs, calls the libraries, writes files.
+
+mod demo;
+mod model;
+mod scan;
+mod simulate;
+mod tables;
+
+pub use model::load as load_model;
+pub use scan::{features, label, scan};
+pub use simulate::{demo, evaluate, model_card, simulate, train};

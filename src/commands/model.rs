@@ -1,0 +1,54 @@
+//! The model a command uses: a file named by `--model`, or the one built into the binary.
+
+use std::path::Path;
+
+use anyhow::Context;
+use verdict_model::ModelBundle;
+
+/// The shipped model (trained by `ccm-triage train training-sim/specs/default.toml`).
+const BUILT_IN: &[u8] = include_bytes!(concat!(env!("CARGO_MANIFEST_DIR"), "/models/default-model.bin"));
+
+/// A loaded model and how to name it in outputs.
+pub struct LoadedModel {
+    /// The model.
+    pub bundle: ModelBundle,
+    /// `built-in` or the path given.
+    pub source: String,
+    /// SHA-256 of the model file's bytes.
+    pub sha256: String,
+}
+
+impl LoadedModel {
+    /// One line naming the model, for reports and logs.
+    pub fn identity_line(&self) -> String {
+        format!(
+            "{} (trained on spec `{}`, sha256 {})",
+            self.source,
+            self.bundle.spec.name,
+            &self.sha256[..16]
+        )
+    }
+}
+
+/// Load `path`, or the built-in model when `None`; the model must match this build's features.
+pub fn load(path: Option<&Path>) -> anyhow::Result<LoadedModel> {
+    let schema = ensemble_features::schema_hash();
+    let (bytes, source) = match path {
+        Some(p) => (
+            std::fs::read(p).with_context(|| format!("cannot read model file {}", p.display()))?,
+            p.display().to_string(),
+        ),
+        None => (BUILT_IN.to_vec(), "built-in model".to_string()),
+    };
+    let bundle = ModelBundle::from_bytes_expecting(&bytes, &schema).with_context(|| {
+        format!(
+            "model {source} cannot be used; train one with `ccm-triage train SPEC.toml --out DIR` \
+             or omit --model to use the built-in model"
+        )
+    })?;
+    Ok(LoadedModel {
+        bundle,
+        source,
+        sha256: verdict_model::sha256_hex(&bytes),
+    })
+}

@@ -1,0 +1,383 @@
+//! `scan`, `label` and `features`: from a table (or ensembles) to labelled pairs and a report.
+
+use std::path::Path;
+use std::time::Instant;
+
+use anyhow::Context;
+use crossmap_engine::Embedding;
+use ensemble_features::Ensemble;
+use series_io::{JsonDocument, OutputDir, ReadOptions, TextDocument};
+use triage_pipeline::{
+    Judgement, PairRecord, QualityThresholds, RunFacts, SeriesSet, assemble_curves, judge,
+    report_view,
+};
+use verdict_model::{Verdict, VerdictPolicy};
+
+use super::model::{self, LoadedModel};
+use super::tables;
+use crate::cli::{FeaturesArgs, LabelArgs, ScanArgs, VerdictArgs};
+use crate::config;
+use crate::progress::Progress;
+
+/// What `scan` and `label` produced, for the caller's summary.
+pub struct Outcome {
+    /// Pair count per verdict: causal, non-causal, review.
+    pub counts: [usize; 3],
+    /// Variable names.
+    pub names: Vec<String>,
+    /// Pair records.
+    pub records: Vec<PairRecord>,
+    /// Their judgements.
+    pub judgements: Vec<Judgement>,
+}
+
+pub fn scan(args: ScanArgs, quiet: bool) -> anyhow::Result<()> {
+    let outcome = run_scan(&args, quiet)?;
+    print_summary(&outcome, &args.out);
+    Ok(())
+}
+
+/// The whole scan, writing every output file into `args.out`.
+pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
+    let started = Instant::now();
+    let settings = config::analysis_settings(&args.engine)?;
+    let policy = policy(&args.verdict)?;
+    let model = model::load(args.verdict.model.as_deref())?;
+    let mut opts = ReadOptions::default();
+    if let Some(t) = &args.time_column {
+        opts = opts.with_time_column(t.clone());
+    }
+    let table = series_io::read_series(&args.data, &opts)?;
+    let series = SeriesSet {
+        names: table.names.clone(),
+        columns: table.columns.clone(),
+    };
+    let n = series.names.len();
+    let bar = Progress::new(quiet, (n * (n - 1)) as u64, "cross maps");
+    let analysis = triage_pipeline::analyse(&series, &settings, &bar.callback())
+        .with_context(|| format!("cannot analyse {}", args.data.display()))?;
+    bar.finish();
+    let judgements = judge(&analysis.pairs, &model.bundle, &policy)?;
+
+    let out = OutputDir::create(&args.out)?;
+    let params = settings_record(&settings, &analysis.params, &series.names);
+    let run = serde_json::json!({
+        "tool": "ccm-triage",
+        "version": env!("CARGO_PKG_VERSION"),
+        "command": "scan",
+        "input": {
+            "path": args.data.display().to_string(),
+            "sha256": table.sha256,
+            "rows": table.n_rows(),
+            "time_column": table.time_column,
+            "series": table.names,
+            "missing_cells": table.missing,
+            "missing_cells_total": table.total_missing(),
+        },
+        "settings": params,
+        "embedding": embedding_record(&series.names, &analysis.embeddings),
+        "model": model_record(&model),
+        "review_band": [policy.band.0, policy.band.1],
+        "feature_schema": {"version": ensemble_features::SCHEMA_VERSION, "hash": ensemble_features::schema_hash()},
+        "pairs": analysis.pairs.len(),
+        "timing": {"seconds": started.elapsed().as_secs_f64(), "threads": rayon::current_num_threads()},
+    });
+    let facts = RunFacts {
+        input_name: file_name(&args.data),
+        input_sha256: Some(table.sha256.clone()),
+        tool_version: env!("CARGO_PKG_VERSION").to_string(),
+        model_identity: model.identity_line(),
+        params: display_params(&args.engine, &policy),
+        notes: missing_notes(&table.names, &table.missing, &analysis.embeddings),
+    };
+    write_results(
+        &out,
+        &series.names,
+        &analysis.embeddings,
+        &analysis.pairs,
+        &judgements,
+        &facts,
+        &run,
+    )?;
+    Ok(outcome(series.names, analysis.pairs, judgements))
+}
+
+pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
+    let _ = quiet;
+    let started = Instant::now();
+    let policy = policy(&args.verdict)?;
+    let model = model::load(args.verdict.model.as_deref())?;
+    let (names, records) = curve_records(&args.curves)?;
+    let judgements = judge(&records, &model.bundle, &policy)?;
+    let out = OutputDir::create(&args.out)?;
+    let sha = series_io::sha256_file(&args.curves)
+        .with_context(|| format!("cannot read {}", args.curves.display()))?;
+    let run = serde_json::json!({
+        "tool": "ccm-triage",
+        "version": env!("CARGO_PKG_VERSION"),
+        "command": "label",
+        "input": {"path": args.curves.display().to_string(), "sha256": sha},
+        "model": model_record(&model),
+        "review_band": [policy.band.0, policy.band.1],
+        "feature_schema": {"version": ensemble_features::SCHEMA_VERSION, "hash": ensemble_features::schema_hash()},
+        "pairs": records.len(),
+        "timing": {"seconds": started.elapsed().as_secs_f64()},
+    });
+    let facts = RunFacts {
+        input_name: file_name(&args.curves),
+        input_sha256: Some(sha),
+        tool_version: env!("CARGO_PKG_VERSION").to_string(),
+        model_identity: model.identity_line(),
+        params: vec![(
+            "review band".into(),
+            format!("{} to {}", policy.band.0, policy.band.1),
+        )],
+        notes: vec![
+            "Ensembles were computed elsewhere: only curve-shape features are available, so the \
+             curve-only model head scored these pairs (no lag profile, surrogates or series context)."
+                .into(),
+        ],
+    };
+    write_results(&out, &names, &[], &records, &judgements, &facts, &run)?;
+    print_summary(&outcome(names, records, judgements), &args.out);
+    Ok(())
+}
+
+pub fn features(args: FeaturesArgs) -> anyhow::Result<()> {
+    let (names, records) = curve_records(&args.curves)?;
+    let out = OutputDir::create(&args.out)?;
+    out.export(&tables::features(&names, &records))?;
+    println!(
+        "features of {} pairs written to {}",
+        records.len(),
+        args.out.join("features.csv").display()
+    );
+    Ok(())
+}
+
+/// Pair records from a curves table; the reverse direction is the (response, driver) rows.
+fn curve_records(path: &Path) -> anyhow::Result<(Vec<String>, Vec<PairRecord>)> {
+    let pairs = series_io::read_curve_pairs(path)?;
+    let mut names: Vec<String> = Vec::new();
+    let mut index = |n: &str, names: &mut Vec<String>| match names.iter().position(|x| x == n) {
+        Some(k) => k,
+        None => {
+            names.push(n.to_string());
+            names.len() - 1
+        }
+    };
+    let mut ensembles = Vec::with_capacity(pairs.len());
+    for p in pairs {
+        let d = index(&p.driver, &mut names);
+        let r = index(&p.response, &mut names);
+        let e = Ensemble {
+            library_sizes: p.library_sizes,
+            skills: p.skills,
+        };
+        e.validate().with_context(|| {
+            format!(
+                "{}: pair {} -> {} cannot be used; fix its rows in the file",
+                path.display(),
+                p.driver,
+                p.response
+            )
+        })?;
+        ensembles.push((d, r, e));
+    }
+    Ok((
+        names,
+        assemble_curves(&ensembles, &QualityThresholds::default()),
+    ))
+}
+
+/// Every result file of a labelling run, each written atomically.
+#[allow(clippy::too_many_arguments)]
+fn write_results(
+    out: &OutputDir,
+    names: &[String],
+    embeddings: &[Embedding],
+    records: &[PairRecord],
+    judgements: &[Judgement],
+    facts: &RunFacts,
+    run: &serde_json::Value,
+) -> anyhow::Result<()> {
+    out.export(&tables::curves(names, records))?;
+    if !embeddings.is_empty() {
+        out.export(&tables::embedding(names, embeddings))?;
+        out.export(&tables::lags(names, records))?;
+        out.export(&tables::surrogates(names, records))?;
+    }
+    out.export(&tables::features(names, records))?;
+    out.export(&tables::labels(names, records, judgements))?;
+    let view = report_view(facts, names, embeddings, records, judgements);
+    let html = review_report::render_html(&view)?;
+    out.export(&TextDocument {
+        name: "report.html".into(),
+        text: html,
+    })?;
+    // run.json last: its presence marks a complete run.
+    out.export(&JsonDocument {
+        name: "run.json".into(),
+        value: run,
+    })?;
+    Ok(())
+}
+
+fn outcome(names: Vec<String>, records: Vec<PairRecord>, judgements: Vec<Judgement>) -> Outcome {
+    let mut counts = [0; 3];
+    for j in &judgements {
+        counts[match j.verdict {
+            Verdict::Causal => 0,
+            Verdict::NonCausal => 1,
+            Verdict::Review => 2,
+        }] += 1;
+    }
+    Outcome {
+        counts,
+        names,
+        records,
+        judgements,
+    }
+}
+
+fn print_summary(o: &Outcome, out: &Path) {
+    println!(
+        "{} pairs: {} causal, {} non-causal, {} to review",
+        o.records.len(),
+        o.counts[0],
+        o.counts[1],
+        o.counts[2]
+    );
+    println!("report: {}", out.join("report.html").display());
+    println!("labels: {}", out.join("labels.csv").display());
+    println!("{}", CAUTION_LINE);
+}
+
+/// One-line form of the caution printed after every labelling run.
+pub const CAUTION_LINE: &str = "caution: a label is evidence from one method under its assumptions, \
+not proof of causation; confirm with domain knowledge and experiments.";
+
+fn policy(args: &VerdictArgs) -> anyhow::Result<VerdictPolicy> {
+    let band = config::parse_band(&args.review_band)?;
+    Ok(VerdictPolicy {
+        band,
+        ..VerdictPolicy::default()
+    })
+}
+
+fn file_name(p: &Path) -> String {
+    p.file_name()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| p.display().to_string())
+}
+
+pub fn model_record(model: &LoadedModel) -> serde_json::Value {
+    serde_json::json!({
+        "source": model.source,
+        "sha256": model.sha256,
+        "training_spec": {"name": model.bundle.spec.name, "hash": model.bundle.spec.hash},
+        "schema_hash": model.bundle.schema_hash,
+    })
+}
+
+/// The resolved settings (what validation made of the flags), for run.json.
+pub fn settings_record(
+    settings: &triage_pipeline::AnalysisSettings,
+    params: &crossmap_engine::ValidParams,
+    names: &[String],
+) -> serde_json::Value {
+    let plans: Vec<serde_json::Value> = names
+        .iter()
+        .zip(&params.plans)
+        .map(|(n, p)| {
+            serde_json::json!({
+                "response": n, "usable_vectors": p.usable, "library_sizes": p.library_sizes,
+                "theiler_window": p.theiler, "max_lag": p.max_lag,
+            })
+        })
+        .collect();
+    let mut record = analysis_settings_json(settings);
+    record["n_points"] = serde_json::json!(params.n_points);
+    record["per_response"] = serde_json::json!(plans);
+    record
+}
+
+/// The analysis settings as given (before validation against any data).
+pub fn analysis_settings_json(settings: &triage_pipeline::AnalysisSettings) -> serde_json::Value {
+    let c = &settings.crossmap;
+    serde_json::json!({
+        "seed": c.seed,
+        "embedding": {
+            "dim": settings.embedding.e,
+            "max_dim": settings.embedding.max_e,
+            "delay": settings.embedding.tau,
+            "theiler_window": settings.embedding.theiler,
+        },
+        "library_sizes": match &c.library_sizes {
+            crossmap_engine::LibrarySizes::Auto { count } => serde_json::json!({"log_spaced_count": count}),
+            crossmap_engine::LibrarySizes::Explicit(v) => serde_json::json!(v),
+        },
+        "replicates": c.replicates,
+        "theiler_window": c.theiler,
+        "max_lag": c.max_lag,
+        "surrogates": c.surrogates,
+        "period": c.period,
+        "quality_thresholds": {
+            "min_largest_library": settings.quality.min_largest_library,
+            "min_self_forecast": settings.quality.min_self_forecast,
+            "converged_skill": settings.quality.converged_skill,
+        },
+    })
+}
+
+fn embedding_record(names: &[String], embeddings: &[Embedding]) -> serde_json::Value {
+    names
+        .iter()
+        .zip(embeddings)
+        .map(|(n, e)| {
+            serde_json::json!({
+                "variable": n, "E": e.e, "tau": e.tau, "simplex_skill": e.simplex_skill,
+                "skill_by_E": e.skill_by_e, "vectors_excluded": e.vectors_excluded,
+            })
+        })
+        .collect()
+}
+
+fn display_params(
+    e: &crate::cli::EngineArgs,
+    policy: &VerdictPolicy,
+) -> Vec<(String, String)> {
+    let auto = |v: Option<usize>| v.map_or("chosen per variable".to_string(), |x| x.to_string());
+    vec![
+        ("seed".into(), e.seed.to_string()),
+        ("embedding dimension".into(), auto(e.dim)),
+        ("largest dimension tried".into(), e.max_dim.to_string()),
+        ("delay".into(), auto(e.delay)),
+        ("library sizes".into(), e.sizes.clone()),
+        ("replicates per size".into(), e.replicates.to_string()),
+        ("Theiler window".into(), auto(e.theiler_window)),
+        ("largest cross-map lag".into(), auto(e.max_lag)),
+        ("surrogates per pair".into(), e.surrogates.to_string()),
+        (
+            "seasonal period".into(),
+            e.period.map_or("none (phase-randomised surrogates)".into(), |p| p.to_string()),
+        ),
+        (
+            "review band".into(),
+            format!("{} to {}", policy.band.0, policy.band.1),
+        ),
+    ]
+}
+
+fn missing_notes(names: &[String], missing: &[usize], embeddings: &[Embedding]) -> Vec<String> {
+    let mut notes = Vec::new();
+    for ((n, m), e) in names.iter().zip(missing).zip(embeddings) {
+        if *m > 0 {
+            notes.push(format!(
+                "{n}: {m} missing cells; {} delay vectors touching them were left out",
+                e.vectors_excluded
+            ));
+        }
+    }
+    notes
+}

@@ -1,0 +1,166 @@
+//! The result tables of `scan` and `label`, as exportable files (formats in the README).
+
+use crossmap_engine::Embedding;
+use series_io::{CsvTable, format_f64};
+use triage_pipeline::{Judgement, PairRecord};
+
+fn opt(v: Option<f64>) -> String {
+    v.map(format_f64).unwrap_or_default()
+}
+
+/// `curves.csv`: one row per ensemble member; replicates are numbered from 1.
+pub fn curves(names: &[String], records: &[PairRecord]) -> CsvTable {
+    let mut rows = Vec::new();
+    for rec in records {
+        let f = &rec.evidence.forward;
+        for (size, skills) in f.library_sizes.iter().zip(&f.skills) {
+            for (r, s) in skills.iter().enumerate() {
+                rows.push(vec![
+                    names[rec.driver].clone(),
+                    names[rec.response].clone(),
+                    size.to_string(),
+                    (r + 1).to_string(),
+                    format_f64(*s),
+                ]);
+            }
+        }
+    }
+    table("curves.csv", &["driver", "response", "library_size", "replicate", "skill"], rows)
+}
+
+/// `lags.csv`: the lag profile of each pair at its largest library size.
+pub fn lags(names: &[String], records: &[PairRecord]) -> CsvTable {
+    let mut rows = Vec::new();
+    for rec in records {
+        if let Some(lag) = &rec.evidence.lag {
+            for (l, s) in lag.lags.iter().zip(&lag.skills) {
+                rows.push(vec![
+                    names[rec.driver].clone(),
+                    names[rec.response].clone(),
+                    l.to_string(),
+                    format_f64(*s),
+                ]);
+            }
+        }
+    }
+    table("lags.csv", &["driver", "response", "lag", "skill"], rows)
+}
+
+/// `surrogates.csv`: the skill of each surrogate driver at the largest library size.
+pub fn surrogates(names: &[String], records: &[PairRecord]) -> CsvTable {
+    let mut rows = Vec::new();
+    for rec in records {
+        for (k, s) in rec.evidence.surrogate_skills.iter().flatten().enumerate() {
+            rows.push(vec![
+                names[rec.driver].clone(),
+                names[rec.response].clone(),
+                (k + 1).to_string(),
+                format_f64(*s),
+            ]);
+        }
+    }
+    table("surrogates.csv", &["driver", "response", "surrogate", "skill"], rows)
+}
+
+/// `embedding.csv`.
+pub fn embedding(names: &[String], embeddings: &[Embedding]) -> CsvTable {
+    let rows = names
+        .iter()
+        .zip(embeddings)
+        .map(|(n, e)| {
+            vec![
+                n.clone(),
+                e.e.to_string(),
+                e.tau.to_string(),
+                format_f64(e.simplex_skill),
+            ]
+        })
+        .collect();
+    table("embedding.csv", &["variable", "E", "tau", "simplex_skill"], rows)
+}
+
+/// `features.csv`: driver, response, then one column per feature (empty = unavailable).
+pub fn features(names: &[String], records: &[PairRecord]) -> CsvTable {
+    let mut header = vec!["driver".to_string(), "response".to_string()];
+    header.extend(ensemble_features::names().into_iter().map(String::from));
+    let rows = records
+        .iter()
+        .map(|rec| {
+            let mut row = vec![names[rec.driver].clone(), names[rec.response].clone()];
+            row.extend(rec.features.iter().map(|v| opt(*v)));
+            row
+        })
+        .collect();
+    CsvTable {
+        name: "features.csv".into(),
+        header,
+        rows,
+    }
+}
+
+/// `labels.csv`, review cases first, then causal, then non-causal; within a group by
+/// decreasing probability.
+pub fn labels(names: &[String], records: &[PairRecord], judgements: &[Judgement]) -> CsvTable {
+    let mut order: Vec<usize> = (0..records.len()).collect();
+    order.sort_by(|&a, &b| {
+        let (ja, jb) = (&judgements[a], &judgements[b]);
+        ja.verdict
+            .sort_rank()
+            .cmp(&jb.verdict.sort_rank())
+            .then(jb.p_causal.total_cmp(&ja.p_causal))
+            .then(a.cmp(&b))
+    });
+    let rows = order
+        .into_iter()
+        .map(|k| {
+            let (rec, j) = (&records[k], &judgements[k]);
+            let fine = |i: usize| opt(j.fine.map(|f| f[i]));
+            vec![
+                names[rec.driver].clone(),
+                names[rec.response].clone(),
+                if j.p_causal.is_nan() {
+                    String::new()
+                } else {
+                    format!("{:.4}", j.p_causal)
+                },
+                j.verdict.as_str().to_string(),
+                verdict_model::reasons_field(&j.reasons),
+                j.head.to_string(),
+                if j.ood_score.is_nan() {
+                    String::new()
+                } else {
+                    format!("{:.3}", j.ood_score)
+                },
+                fine(0),
+                fine(1),
+                fine(2),
+                fine(3),
+            ]
+        })
+        .collect();
+    table(
+        "labels.csv",
+        &[
+            "driver",
+            "response",
+            "p_causal",
+            "verdict",
+            "reasons",
+            "model_head",
+            "unfamiliarity",
+            "p_direct",
+            "p_indirect",
+            "p_confounded",
+            "p_independent",
+        ],
+        rows,
+    )
+}
+
+fn table(name: &str, header: &[&str], rows: Vec<Vec<String>>) -> CsvTable {
+    CsvTable {
+        name: name.into(),
+        header: header.iter().map(|h| h.to_string()).collect(),
+        rows,
+    }
+}
