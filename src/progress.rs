@@ -33,11 +33,6 @@ impl Progress {
         move |done| self.bar.set_position(done as u64)
     }
 
-    /// Advance by one.
-    pub fn tick(&self) {
-        self.bar.inc(1);
-    }
-
     /// Remove the bar.
     pub fn finish(self) {
         self.bar.finish_and_clear();

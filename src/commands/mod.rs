@@ -6,6 +6,5 @@ mod scan;
 mod simulate;
 mod tables;
 
-pub use model::load as load_model;
 pub use scan::{features, label, scan};
 pub use simulate::{demo, evaluate, model_card, simulate, train};

@@ -110,7 +110,7 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
     let (names, records) = curve_records(&args.curves)?;
     let judgements = judge(&records, &model.bundle, &policy)?;
     let out = OutputDir::create(&args.out)?;
-    let sha = series_io::sha256_file(&args.curves)
+    let sha = series_io::checksum::sha256_file(&args.curves)
         .with_context(|| format!("cannot read {}", args.curves.display()))?;
     let run = serde_json::json!({
         "tool": "ccm-triage",
@@ -159,7 +159,7 @@ pub fn features(args: FeaturesArgs) -> anyhow::Result<()> {
 fn curve_records(path: &Path) -> anyhow::Result<(Vec<String>, Vec<PairRecord>)> {
     let pairs = series_io::read_curve_pairs(path)?;
     let mut names: Vec<String> = Vec::new();
-    let mut index = |n: &str, names: &mut Vec<String>| match names.iter().position(|x| x == n) {
+    let index = |n: &str, names: &mut Vec<String>| match names.iter().position(|x| x == n) {
         Some(k) => k,
         None => {
             names.push(n.to_string());

@@ -134,7 +134,13 @@ pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
         verdict_model::sha256_hex(&bytes)
     );
     for t in &card.targets {
-        println!("  {t}");
+        println!(
+            "  {:<40} target {:<8} measured {:<8} {}",
+            t.name,
+            t.target,
+            t.value.map_or("n/a".to_string(), |v| format!("{v:.3}")),
+            if t.met { "met" } else { "NOT met" }
+        );
     }
     Ok(())
 }

@@ -1,0 +1,244 @@
+//! End-to-end tests of the `ccm-triage` binary.
+
+mod common;
+
+use assert_cmd::Command;
+use common::{coupled_logistic_csv, read_csv, temp};
+use predicates::prelude::*;
+
+fn bin() -> Command {
+    Command::cargo_bin("ccm-triage").expect("binary built")
+}
+
+/// Coupled logistic maps of Sugihara et al. (2012), r_x = 3.8, r_y = 3.5, X drives Y only
+/// (beta_yx = 0.1, beta_xy = 0). The shipped model must call X -> Y causal and must not call
+/// Y -> X causal (non-causal or review).
+#[test]
+fn shipped_model_finds_the_true_direction_of_coupled_logistic_maps() {
+    let dir = temp();
+    let data = dir.path().join("maps.csv");
+    std::fs::write(&data, coupled_logistic_csv(400)).unwrap();
+    let out = dir.path().join("run");
+    bin()
+        .args(["scan", data.to_str().unwrap(), "--out", out.to_str().unwrap(), "--quiet"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("2 pairs"));
+    let labels = read_csv(&out.join("labels.csv"));
+    let verdict = |d: &str, r: &str| {
+        labels
+            .iter()
+            .find(|row| row["driver"] == d && row["response"] == r)
+            .map(|row| row["verdict"].clone())
+            .expect("pair present")
+    };
+    assert_eq!(verdict("x", "y"), "causal", "{labels:?}");
+    assert_ne!(verdict("y", "x"), "causal", "{labels:?}");
+}
+
+#[test]
+fn scan_writes_every_contract_file_with_its_header() {
+    let dir = temp();
+    let data = dir.path().join("maps.csv");
+    std::fs::write(&data, coupled_logistic_csv(200)).unwrap();
+    let out = dir.path().join("run");
+    bin()
+        .args(["scan", data.to_str().unwrap(), "--out", out.to_str().unwrap()])
+        .args(["--replicates", "20", "--sizes", "6", "--surrogates", "9", "--seed", "3"])
+        .assert()
+        .success();
+    let header = |f: &str| {
+        std::fs::read_to_string(out.join(f))
+            .unwrap()
+            .lines()
+            .next()
+            .unwrap()
+            .to_string()
+    };
+    assert_eq!(header("curves.csv"), "driver,response,library_size,replicate,skill");
+    assert_eq!(header("embedding.csv"), "variable,E,tau,simplex_skill");
+    assert!(header("features.csv").starts_with("driver,response,skill_final_mean"));
+    assert!(header("labels.csv").starts_with("driver,response,p_causal,verdict,reasons"));
+    let curves = read_csv(&out.join("curves.csv"));
+    // 2 ordered pairs x 6 sizes x 20 replicates (sizes may merge after rounding: at most 6).
+    assert!(curves.len() <= 2 * 6 * 20 && curves.len() >= 2 * 4 * 20);
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("run.json")).unwrap()).unwrap();
+    assert_eq!(run["settings"]["seed"], 3);
+    assert_eq!(run["input"]["sha256"].as_str().unwrap().len(), 64);
+    assert!(run["model"]["sha256"].is_string());
+    let html = std::fs::read_to_string(out.join("report.html")).unwrap();
+    assert!(html.contains("not proof"));
+    // Nothing half-written is left behind.
+    for entry in std::fs::read_dir(&out).unwrap() {
+        let name = entry.unwrap().file_name().into_string().unwrap();
+        assert!(!name.contains(".partial-"), "{name}");
+    }
+}
+
+#[test]
+fn same_seed_gives_identical_results_for_any_thread_count() {
+    let dir = temp();
+    let data = dir.path().join("maps.csv");
+    std::fs::write(&data, coupled_logistic_csv(150)).unwrap();
+    let run = |threads: &str, name: &str| {
+        let out = dir.path().join(name);
+        bin()
+            .args(["scan", data.to_str().unwrap(), "--out", out.to_str().unwrap()])
+            .args(["--replicates", "15", "--threads", threads])
+            .assert()
+            .success();
+        out
+    };
+    let (a, b) = (run("1", "one"), run("2", "two"));
+    for f in ["curves.csv", "features.csv", "labels.csv", "lags.csv", "surrogates.csv"] {
+        assert_eq!(
+            std::fs::read(a.join(f)).unwrap(),
+            std::fs::read(b.join(f)).unwrap(),
+            "{f}"
+        );
+    }
+}
+
+#[test]
+fn label_reads_curves_written_by_scan() {
+    let dir = temp();
+    let data = dir.path().join("maps.csv");
+    std::fs::write(&data, coupled_logistic_csv(200)).unwrap();
+    let out = dir.path().join("run");
+    bin()
+        .args(["scan", data.to_str().unwrap(), "--out", out.to_str().unwrap()])
+        .args(["--replicates", "20"])
+        .assert()
+        .success();
+    let relabel = dir.path().join("relabel");
+    bin()
+        .args(["label", out.join("curves.csv").to_str().unwrap(), "--out"])
+        .arg(&relabel)
+        .assert()
+        .success();
+    let labels = read_csv(&relabel.join("labels.csv"));
+    assert_eq!(labels.len(), 2);
+    for row in &labels {
+        assert!(["causal", "non-causal", "review"].contains(&row["verdict"].as_str()));
+        assert_eq!(row["model_head"], "curve-only");
+    }
+    let feats = dir.path().join("feats");
+    bin()
+        .args(["features", out.join("curves.csv").to_str().unwrap(), "--out"])
+        .arg(&feats)
+        .assert()
+        .success();
+    let rows = read_csv(&feats.join("features.csv"));
+    assert_eq!(rows.len(), 2);
+    // Curve-only input: lag, surrogate and context features are missing, never zero.
+    assert_eq!(rows[0]["lag_best"], "");
+    assert_eq!(rows[0]["correlation"], "");
+    assert_ne!(rows[0]["skill_final_mean"], "");
+}
+
+#[test]
+fn bad_input_fails_with_a_message_naming_row_column_and_fix() {
+    let dir = temp();
+    let data = dir.path().join("bad.csv");
+    std::fs::write(&data, "t,a,b\n0,1.0,2.0\n1,oops,3.0\n2,1.5,2.5\n").unwrap();
+    bin()
+        .args(["scan", data.to_str().unwrap(), "--out"])
+        .arg(dir.path().join("o"))
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("row 3").and(predicate::str::contains("`a`")));
+    assert!(!dir.path().join("o").join("labels.csv").exists());
+}
+
+#[test]
+fn bad_options_are_rejected_before_any_work() {
+    let dir = temp();
+    let data = dir.path().join("maps.csv");
+    std::fs::write(&data, coupled_logistic_csv(100)).unwrap();
+    bin()
+        .args(["scan", data.to_str().unwrap(), "--out"])
+        .arg(dir.path().join("o"))
+        .args(["--review-band", "0.7,0.9"])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("--review-band"));
+    bin()
+        .args(["scan", data.to_str().unwrap(), "--out"])
+        .arg(dir.path().join("o"))
+        .args(["--sizes", "80,40"])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("increasing"));
+}
+
+#[test]
+fn simulate_is_deterministic_and_scan_reads_its_output() {
+    let dir = temp();
+    let spec = concat!(env!("CARGO_MANIFEST_DIR"), "/training-sim/specs/small.toml");
+    let (a, b) = (dir.path().join("a"), dir.path().join("b"));
+    for out in [&a, &b] {
+        bin().args(["simulate", spec, "--out"]).arg(out).assert().success();
+    }
+    let truth_a = std::fs::read(a.join("truth.csv")).unwrap();
+    assert_eq!(truth_a, std::fs::read(b.join("truth.csv")).unwrap());
+    let first = read_csv(&a.join("truth.csv"))[0]["system"].clone();
+    let csv = a.join(format!("{first}.csv"));
+    assert_eq!(std::fs::read(&csv).unwrap(), std::fs::read(b.join(format!("{first}.csv"))).unwrap());
+    bin()
+        .args(["scan", csv.to_str().unwrap(), "--out"])
+        .arg(dir.path().join("scan"))
+        .args(["--replicates", "10", "--quiet"])
+        .assert()
+        .success();
+}
+
+/// Issue contract: the same training command and seed produce the same model bytes.
+#[test]
+fn training_is_reproducible_byte_for_byte() {
+    let dir = temp();
+    let spec = concat!(env!("CARGO_MANIFEST_DIR"), "/training-sim/specs/small.toml");
+    let mut models = Vec::new();
+    for name in ["m1", "m2"] {
+        let out = dir.path().join(name);
+        bin()
+            .args(["train", spec, "--out"])
+            .arg(&out)
+            .args(["--replicates", "20", "--quiet"])
+            .assert()
+            .success();
+        models.push(std::fs::read(out.join("model.bin")).unwrap());
+    }
+    assert_eq!(models[0], models[1]);
+    bin()
+        .args(["model-card"])
+        .arg(dir.path().join("m1").join("model.bin"))
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("small"));
+}
+
+#[test]
+fn corrupted_model_file_is_refused_with_a_clear_error() {
+    let dir = temp();
+    let model = dir.path().join("model.bin");
+    std::fs::write(&model, b"not a model at all").unwrap();
+    bin()
+        .args(["model-card"])
+        .arg(&model)
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("cannot be used"));
+}
+
+#[test]
+fn demo_runs_from_any_directory_and_compares_with_its_answer_key() {
+    let dir = temp();
+    bin()
+        .current_dir(dir.path())
+        .args(["demo", "--out", "demo", "--quiet"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("answer key").and(predicate::str::contains("report:")));
+    assert!(dir.path().join("demo/scan/report.html").exists());
+}
