@@ -81,7 +81,7 @@ impl Table {
             full: vec![false; n],
         };
         for q in 0..n {
-            index.nearest(q, library, k, &|_| true, &mut s.nb);
+            index.nearest_all(q, library, k, &mut s.nb);
             if s.nb.len() == k {
                 simplex_weights(&s.nb, &mut s.w);
                 t.full[q] = true;

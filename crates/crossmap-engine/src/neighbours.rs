@@ -91,6 +91,12 @@ pub trait NeighbourIndex: Sync {
         accept: &dyn Fn(usize) -> bool,
         out: &mut Vec<Neighbour>,
     );
+
+    /// [`NeighbourIndex::nearest`] with every library member acceptable (the table-building
+    /// hot path; implementations may specialise it).
+    fn nearest_all(&self, q: usize, library: &Library, k: usize, out: &mut Vec<Neighbour>) {
+        self.nearest(q, library, k, &|_| true, out);
+    }
 }
 
 /// Exact scan over the library members: O(L E) per query; best for small libraries.
@@ -127,27 +133,31 @@ fn outside_window(tq: usize, tp: usize, w: usize) -> bool {
     tq.abs_diff(tp) > w
 }
 
-/// Keep the `k` smallest (d2, pos) pairs seen, sorted; `best` has capacity k.
+/// Keep the `k` smallest (d2, pos) pairs seen, sorted; `dist` holds the squared distance while
+/// scanning. Insertion by adjacent swaps: k is small, so this beats a binary search and memmove.
 #[inline]
-fn offer(best: &mut Vec<(f64, u32)>, k: usize, d2: f64, p: u32) {
+fn offer(best: &mut Vec<Neighbour>, k: usize, d2: f64, p: u32) {
+    let cand = Neighbour { pos: p, dist: d2 };
     if best.len() == k {
-        let worst = best[k - 1];
-        if (d2, p) >= worst {
-            return;
-        }
-        best.pop();
+        best[k - 1] = cand;
+    } else {
+        best.push(cand);
     }
-    let at = best.partition_point(|&(d, i)| (d, i) < (d2, p));
-    best.insert(at, (d2, p));
+    let mut i = best.len() - 1;
+    while i > 0 && (best[i - 1].dist, best[i - 1].pos) > (d2, p) {
+        best.swap(i - 1, i);
+        i -= 1;
+    }
 }
 
-fn scan_into(
+#[inline]
+fn scan_into<A: Fn(usize) -> bool + ?Sized>(
     m: &Manifold,
     w: usize,
     q: usize,
     candidates: &[u32],
     k: usize,
-    accept: &dyn Fn(usize) -> bool,
+    accept: &A,
     out: &mut Vec<Neighbour>,
 ) {
     out.clear();
@@ -156,29 +166,26 @@ fn scan_into(
     }
     let tq = m.time(q);
     let qp = m.point(q);
-    let mut best: Vec<(f64, u32)> = Vec::with_capacity(k + 1);
     for &p in candidates {
         let pu = p as usize;
         if !outside_window(tq, m.time(pu), w) {
             continue;
         }
-        let d2 = if best.len() == k {
+        let d2 = if out.len() == k {
+            let worst = (out[k - 1].dist, out[k - 1].pos);
             // Early abandonment: a partial sum already above the k-th best cannot enter.
-            match sq_dist_bounded(qp, m.point(pu), best[k - 1].0) {
-                Some(d2) if (d2, p) < best[k - 1] => d2,
+            match sq_dist_bounded(qp, m.point(pu), worst.0) {
+                Some(d2) if (d2, p) < worst => d2,
                 _ => continue,
             }
         } else {
             sq_dist(qp, m.point(pu))
         };
         if accept(pu) {
-            offer(&mut best, k, d2, p);
+            offer(out, k, d2, p);
         }
     }
-    out.extend(best.iter().map(|&(d2, p)| Neighbour {
-        pos: p,
-        dist: d2.sqrt(),
-    }));
+    out.iter_mut().for_each(|n| n.dist = n.dist.sqrt());
 }
 
 impl NeighbourIndex for ExactScan<'_> {
@@ -276,21 +283,14 @@ impl<'m> SortedLists<'m> {
     }
 }
 
-impl NeighbourIndex for SortedLists<'_> {
-    fn manifold(&self) -> &Manifold {
-        self.manifold
-    }
-
-    fn theiler(&self) -> usize {
-        self.theiler
-    }
-
-    fn nearest(
+impl SortedLists<'_> {
+    #[inline]
+    fn walk<A: Fn(usize) -> bool + ?Sized>(
         &self,
         q: usize,
         library: &Library,
         k: usize,
-        accept: &dyn Fn(usize) -> bool,
+        accept: &A,
         out: &mut Vec<Neighbour>,
     ) {
         out.clear();
@@ -323,11 +323,37 @@ impl NeighbourIndex for SortedLists<'_> {
     }
 }
 
-/// Walk or scan? The walk costs about `2 k N / L` steps (mask test plus a cache miss), the scan
-/// `L E` distance terms: walk when `L^2 E > 2 k N`.
+impl NeighbourIndex for SortedLists<'_> {
+    fn manifold(&self) -> &Manifold {
+        self.manifold
+    }
+
+    fn theiler(&self) -> usize {
+        self.theiler
+    }
+
+    fn nearest(
+        &self,
+        q: usize,
+        library: &Library,
+        k: usize,
+        accept: &dyn Fn(usize) -> bool,
+        out: &mut Vec<Neighbour>,
+    ) {
+        self.walk(q, library, k, accept, out);
+    }
+
+    fn nearest_all(&self, q: usize, library: &Library, k: usize, out: &mut Vec<Neighbour>) {
+        self.walk(q, library, k, &|_| true, out);
+    }
+}
+
+/// Walk or scan? The walk costs about `k N / L` cheap steps (a mask test), the scan `L`
+/// candidates at roughly three times a step's cost (distance, window test, insertion; measured
+/// with the criterion bench): walk when `3 L^2 > k N`.
 pub fn prefer_walk(n: usize, l: usize, e: usize) -> bool {
     let k = e + 1;
-    (l * l * e) > 2 * k * n
+    3 * l * l > k * n
 }
 
 /// List depth for libraries of at least `l_min` members: four times the expected walk length
