@@ -64,6 +64,30 @@ pub(crate) struct Scratch {
     w: Vec<f64>,
     est: Vec<f64>,
     obs: Vec<f64>,
+    acc: Vec<f64>,
+    multi_est: Vec<Vec<f64>>,
+    multi_obs: Vec<Vec<f64>>,
+}
+
+/// Driver values laid out time-major (`vals[t * count + j]`), so one neighbour's values for every
+/// driver sit together and the fused estimate loop reads them contiguously.
+pub(crate) struct TimeMajor {
+    count: usize,
+    vals: Vec<f64>,
+}
+
+impl TimeMajor {
+    pub(crate) fn new(columns: &[&[f64]]) -> Self {
+        let n = columns.first().map_or(0, |c| c.len());
+        let count = columns.len();
+        let mut vals = vec![0.0; n * count];
+        for (j, c) in columns.iter().enumerate() {
+            for (t, &v) in c.iter().enumerate() {
+                vals[t * count + j] = if v.is_finite() { v } else { f64::NAN };
+            }
+        }
+        Self { count, vals }
+    }
 }
 
 impl Table {
@@ -150,6 +174,69 @@ impl Table {
             s.est.push(est);
             s.obs.push(obs);
         }
+    }
+
+    /// Lag-0 skill for several targets in one pass over the table; bit-identical to calling
+    /// [`Table::skill`] per target (same summation order, same fallback for missing values).
+    pub(crate) fn skills_fused(
+        &self,
+        index: &dyn NeighbourIndex,
+        library: &Library,
+        columns: &[&[f64]],
+        tm: &TimeMajor,
+        s: &mut Scratch,
+    ) -> Vec<f64> {
+        let m = index.manifold();
+        let (k, dn) = (self.k, tm.count);
+        s.multi_est.resize_with(dn, Vec::new);
+        s.multi_obs.resize_with(dn, Vec::new);
+        s.multi_est
+            .iter_mut()
+            .chain(s.multi_obs.iter_mut())
+            .for_each(Vec::clear);
+        s.acc.clear();
+        s.acc.resize(dn, 0.0);
+        for q in 0..m.len() {
+            if !self.full[q] {
+                continue;
+            }
+            s.acc.iter_mut().for_each(|a| *a = 0.0);
+            for j in 0..k {
+                let w = self.weight[q * k + j];
+                let t = m.time(self.pos[q * k + j] as usize);
+                let row = &tm.vals[t * dn..(t + 1) * dn];
+                for (a, &v) in s.acc.iter_mut().zip(row) {
+                    *a += w * v;
+                }
+            }
+            let t = m.time(q);
+            for (d, &target) in columns.iter().enumerate() {
+                let obs = tm.vals[t * dn + d];
+                if !obs.is_finite() {
+                    continue;
+                }
+                let mut est = s.acc[d];
+                if !est.is_finite() {
+                    // A neighbour's value is missing: take the next neighbour for this target.
+                    let accept = |p: usize| target_at(target, m.time(p), 0).is_some();
+                    index.nearest(q, library, k, &accept, &mut s.nb);
+                    if s.nb.len() < k {
+                        continue;
+                    }
+                    simplex_weights(&s.nb, &mut s.w);
+                    est =
+                        s.nb.iter()
+                            .zip(&s.w)
+                            .map(|(nb, &w)| w * target[m.time(nb.pos as usize)])
+                            .sum();
+                }
+                s.multi_est[d].push(est);
+                s.multi_obs[d].push(obs);
+            }
+        }
+        (0..dn)
+            .map(|d| pearson(&s.multi_est[d], &s.multi_obs[d]))
+            .collect()
     }
 
     pub(crate) fn skill(
@@ -288,6 +375,8 @@ pub fn cross_map_response(
     let k = emb.e + 1;
     let sizes = &plan.library_sizes;
     let drivers: Vec<usize> = (0..series.len()).filter(|&d| d != response).collect();
+    let columns: Vec<&[f64]> = drivers.iter().map(|&d| series[d].as_slice()).collect();
+    let time_major = TimeMajor::new(&columns);
 
     let walk_min = sizes
         .iter()
@@ -316,10 +405,7 @@ pub fn cross_map_response(
             let lib = draw_library(raw.seed, response, l, r, n);
             let index = index_for(l);
             let table = Table::build(index, &lib, k, s);
-            drivers
-                .iter()
-                .map(|&d| table.skill(index, &lib, &series[d], 0, s))
-                .collect()
+            table.skills_fused(index, &lib, &columns, &time_major, s)
         })
         .collect();
 
