@@ -35,16 +35,25 @@ pub enum Command {
     #[command(after_help = "Example:\n  ccm-triage features curves.csv --out feats")]
     Features(FeaturesArgs),
     /// Simulate labelled coupled systems from a spec file.
-    #[command(after_help = "Example:\n  ccm-triage simulate training-sim/specs/lab-example.toml --out sims")]
+    #[command(
+        after_help = "Example:\n  ccm-triage simulate training-sim/specs/lab-example.toml --out sims"
+    )]
     Simulate(SimulateArgs),
     /// Train and calibrate a model on simulated systems from a spec file.
-    #[command(after_help = "Example:\n  ccm-triage train training-sim/specs/default.toml --out my-model")]
+    #[command(
+        after_help = "Example:\n  ccm-triage train training-sim/specs/default.toml --out my-model"
+    )]
     Train(TrainArgs),
     /// Measure a model on simulated systems it was not trained on.
-    #[command(after_help = "Example:\n  ccm-triage evaluate --model my-model/model.bin training-sim/specs/holdout.toml")]
+    #[command(
+        after_help = "Example:\n  ccm-triage evaluate --model my-model/model.bin training-sim/specs/holdout.toml"
+    )]
     Evaluate(EvaluateArgs),
     /// Print a model file's card (training data, metrics, identity).
-    #[command(name = "model-card", after_help = "Example:\n  ccm-triage model-card my-model/model.bin")]
+    #[command(
+        name = "model-card",
+        after_help = "Example:\n  ccm-triage model-card my-model/model.bin"
+    )]
     ModelCard(ModelCardArgs),
     /// Run the bundled demo scenario and compare the verdicts with its answer key.
     #[command(after_help = "Example:\n  ccm-triage demo --out demo-run")]

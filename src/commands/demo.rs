@@ -24,7 +24,9 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
             review_band: "0.25,0.75".into(),
         },
     };
-    let first = STORY.lines().find(|l| !l.trim().is_empty() && !l.starts_with('#'));
+    let first = STORY
+        .lines()
+        .find(|l| !l.trim().is_empty() && !l.starts_with('#'));
     if let Some(line) = first {
         println!("{line}\n");
     }
@@ -33,7 +35,7 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
     let mut table = String::new();
     let (mut agree, mut wrong, mut review) = (0, 0, 0);
     table.push_str(&format!(
-        "{:<28} {:>8}  {:<11} {:<12}\n",
+        "{:<34} {:>8}  {:<11} {:<12}\n",
         "driver -> response", "p_causal", "verdict", "answer key"
     ));
     for (rec, j) in outcome.records.iter().zip(&outcome.judgements) {
@@ -51,7 +53,7 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
             _ => wrong += 1,
         }
         table.push_str(&format!(
-            "{:<28} {:>8.2}  {:<11} {:<12}\n",
+            "{:<34} {:>8.2}  {:<11} {:<12}\n",
             format!("{d} -> {r}"),
             j.p_causal,
             j.verdict.as_str(),
@@ -87,7 +89,11 @@ fn answer_key() -> anyhow::Result<Vec<(String, String, String)>> {
         let f: Vec<&str> = line.split(',').collect();
         anyhow::ensure!(f.len() >= 3, "answer key row `{line}` is malformed");
         let k = f.len();
-        rows.push((f[k - 3].to_string(), f[k - 2].to_string(), f[k - 1].to_string()));
+        rows.push((
+            f[k - 3].to_string(),
+            f[k - 2].to_string(),
+            f[k - 1].to_string(),
+        ));
     }
     Ok(rows)
 }

@@ -343,10 +343,7 @@ fn embedding_record(names: &[String], embeddings: &[Embedding]) -> serde_json::V
         .collect()
 }
 
-fn display_params(
-    e: &crate::cli::EngineArgs,
-    policy: &VerdictPolicy,
-) -> Vec<(String, String)> {
+fn display_params(e: &crate::cli::EngineArgs, policy: &VerdictPolicy) -> Vec<(String, String)> {
     let auto = |v: Option<usize>| v.map_or("chosen per variable".to_string(), |x| x.to_string());
     vec![
         ("seed".into(), e.seed.to_string()),
@@ -360,7 +357,10 @@ fn display_params(
         ("surrogates per pair".into(), e.surrogates.to_string()),
         (
             "seasonal period".into(),
-            e.period.map_or("none (phase-randomised surrogates)".into(), |p| p.to_string()),
+            e.period
+                .map_or("none (phase-randomised surrogates)".into(), |p| {
+                    p.to_string()
+                }),
         ),
         (
             "review band".into(),

@@ -31,7 +31,11 @@ pub fn read_csv(path: &Path) -> Vec<BTreeMap<String, String>> {
     rdr.records()
         .map(|r| {
             let r = r.unwrap();
-            header.iter().cloned().zip(r.iter().map(String::from)).collect()
+            header
+                .iter()
+                .cloned()
+                .zip(r.iter().map(String::from))
+                .collect()
         })
         .collect()
 }

@@ -17,7 +17,6 @@ mod quality;
 mod report_view;
 mod training;
 
-
 pub use assemble::{PairRecord, assemble, assemble_curves};
 pub use judge::{Judgement, judge, rule_of_thumb};
 pub use quality::{QualityThresholds, quality_flags};
@@ -25,7 +24,6 @@ pub use report_view::{KEY_FEATURES, RunFacts, report_view};
 pub use training::{
     AnalysedSystem, SkippedSystem, analyse_systems, fine_label, series_of, training_set,
 };
-
 
 use crossmap_engine::{CrossMapParams, Embedding, EmbeddingSettings, PairEnsemble, ValidParams};
 
@@ -141,7 +139,8 @@ pub fn analyse(
             .into_par_iter()
             .flat_map_iter(|response| {
                 let unit = cross_map_unit(series, &embeddings, response, &params);
-                let n = done.fetch_add(unit.len(), std::sync::atomic::Ordering::Relaxed) + unit.len();
+                let n =
+                    done.fetch_add(unit.len(), std::sync::atomic::Ordering::Relaxed) + unit.len();
                 progress(n);
                 unit
             })

@@ -34,9 +34,12 @@ impl Default for QualityThresholds {
 /// a best lag after zero while both directions converge is suspicious.
 pub fn quality_flags(evidence: &PairEvidence, t: &QualityThresholds) -> QualityFlags {
     let largest = evidence.forward.library_sizes.last().copied().unwrap_or(0);
-    let weak_self_forecast = evidence
-        .context
-        .is_some_and(|c| !(c.simplex_response >= t.min_self_forecast));
+    // A NaN self-forecast skill (nothing predictable) counts as weak.
+    let weak_self_forecast = evidence.context.is_some_and(|c| {
+        c.simplex_response
+            .partial_cmp(&t.min_self_forecast)
+            .is_none_or(|o| o == std::cmp::Ordering::Less)
+    });
     let both_converge = final_mean(&evidence.forward) > t.converged_skill
         && evidence
             .reverse

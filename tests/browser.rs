@@ -12,12 +12,15 @@
 //!   failed resource loads and blocked requests are reported), and any `CONSOLE`
 //!   line in Chromium's stderr log (`--enable-logging=stderr --v=0`).
 //!
-//! A second test loads a deliberately broken page to show that each detector fires.
+//! The pages are the demo scenario's report as `ccm-triage demo` writes it, and two synthetic
+//! view models (6 and 40 variables) rendered directly; a second test loads a deliberately
+//! broken page to show that each detector fires.
 //!
 //! The tests skip with a printed reason when Chromium is absent, and fail instead
 //! when `CI=true`, so CI cannot pass by skipping.
 
-mod common;
+#[path = "../crates/review-report/tests/common/mod.rs"]
+mod samples;
 
 use std::io::{BufRead, BufReader, Read, Write};
 use std::path::{Path, PathBuf};
@@ -280,15 +283,19 @@ fn report_renders_in_chromium_without_console_errors() {
     let Some(exe) = chromium() else { return };
     let dir = tempfile::tempdir().unwrap();
     let mut browser = Browser::launch(&exe);
+    let demo = demo_report(dir.path());
+    let mut pages = vec![("demo report", demo, 6u64)];
     for (name, data) in [
-        ("small.html", common::small()),
-        ("wide.html", common::wide(40)),
+        ("small.html", samples::small()),
+        ("wide.html", samples::wide(40)),
     ] {
         let path = dir.path().join(name);
         std::fs::write(&path, review_report::render_html(&data).unwrap()).unwrap();
+        pages.push((name, path, data.variables.len() as u64));
+    }
+    for (name, path, n) in pages {
         let session = browser.open(&file_url(&path));
         let facts = browser.eval(&session, PAGE_FACTS);
-        let n = data.variables.len() as u64;
         assert_eq!(facts["cells"], json!(n * n), "{name}: {facts}");
         assert_eq!(facts["rows"], json!(n), "{name}: {facts}");
         assert!(facts["curve_svgs"].as_u64().unwrap() > 0, "{name}: {facts}");
@@ -318,6 +325,18 @@ fn report_renders_in_chromium_without_console_errors() {
     let console = browser.stderr_console_lines();
     browser.close();
     assert!(console.is_empty(), "console lines in stderr: {console:#?}");
+}
+
+/// Runs `ccm-triage demo` into `dir` and returns the report it wrote.
+fn demo_report(dir: &Path) -> PathBuf {
+    let status = Command::new(env!("CARGO_BIN_EXE_ccm-triage"))
+        .args(["demo", "--quiet", "--out"])
+        .arg(dir.join("demo"))
+        .stdout(Stdio::null())
+        .status()
+        .expect("run ccm-triage demo");
+    assert!(status.success(), "ccm-triage demo failed");
+    dir.join("demo").join("scan").join("report.html")
 }
 
 #[test]
