@@ -156,11 +156,16 @@ fn inconsistent_data_is_refused_with_a_typed_error() {
     ));
 
     let mut d = common::small();
-    d.pairs[1].p_causal = f64::NAN;
+    d.pairs[1].p_causal = 1.5;
     assert!(matches!(
         render_html(&d),
         Err(ReportError::InvalidProbability { .. })
     ));
+
+    // NaN marks a pair no model head could score: rendered as "n/a", not refused.
+    let mut d = common::small();
+    d.pairs[1].p_causal = f64::NAN;
+    assert!(render_html(&d).unwrap().contains("n/a"));
 
     let mut d = common::small();
     d.pairs[2].forward.pop();
