@@ -10,24 +10,28 @@ fn bin() -> Command {
     Command::cargo_bin("ccm-triage").expect("binary built")
 }
 
+/// Write `n` points of the coupled logistic maps into `dir` and scan them with `extra` flags;
+/// returns the output directory.
+fn scan_maps(dir: &std::path::Path, name: &str, n: usize, extra: &[&str]) -> std::path::PathBuf {
+    let data = dir.join(format!("{name}.csv"));
+    std::fs::write(&data, coupled_logistic_csv(n)).unwrap();
+    let out = dir.join(name);
+    bin()
+        .arg("scan")
+        .arg(&data)
+        .arg("--out")
+        .arg(&out)
+        .args(extra)
+        .assert()
+        .success();
+    out
+}
+
 /// Scan the coupled logistic maps of Sugihara et al. (2012) with the shipped model; returns
 /// (verdict, p_causal) of X -> Y and of Y -> X.
 fn logistic_map_verdicts() -> [(String, f64); 2] {
     let dir = temp();
-    let data = dir.path().join("maps.csv");
-    std::fs::write(&data, coupled_logistic_csv(400)).unwrap();
-    let out = dir.path().join("run");
-    bin()
-        .args([
-            "scan",
-            data.to_str().unwrap(),
-            "--out",
-            out.to_str().unwrap(),
-            "--quiet",
-        ])
-        .assert()
-        .success()
-        .stdout(predicate::str::contains("2 pairs"));
+    let out = scan_maps(dir.path(), "run", 400, &["--quiet"]);
     let labels = read_csv(&out.join("labels.csv"));
     let get = |d: &str, r: &str| {
         let row = labels
@@ -66,17 +70,11 @@ fn shipped_model_calls_the_true_direction_of_coupled_logistic_maps_causal() {
 #[test]
 fn scan_writes_every_contract_file_with_its_header() {
     let dir = temp();
-    let data = dir.path().join("maps.csv");
-    std::fs::write(&data, coupled_logistic_csv(200)).unwrap();
-    let out = dir.path().join("run");
-    bin()
-        .args([
-            "scan",
-            data.to_str().unwrap(),
-            "--out",
-            out.to_str().unwrap(),
-        ])
-        .args([
+    let out = scan_maps(
+        dir.path(),
+        "run",
+        200,
+        &[
             "--replicates",
             "20",
             "--sizes",
@@ -85,9 +83,8 @@ fn scan_writes_every_contract_file_with_its_header() {
             "9",
             "--seed",
             "3",
-        ])
-        .assert()
-        .success();
+        ],
+    );
     let header = |f: &str| {
         std::fs::read_to_string(out.join(f))
             .unwrap()
@@ -123,21 +120,13 @@ fn scan_writes_every_contract_file_with_its_header() {
 #[test]
 fn same_seed_gives_identical_results_for_any_thread_count() {
     let dir = temp();
-    let data = dir.path().join("maps.csv");
-    std::fs::write(&data, coupled_logistic_csv(150)).unwrap();
     let run = |threads: &str, name: &str| {
-        let out = dir.path().join(name);
-        bin()
-            .args([
-                "scan",
-                data.to_str().unwrap(),
-                "--out",
-                out.to_str().unwrap(),
-            ])
-            .args(["--replicates", "15", "--threads", threads])
-            .assert()
-            .success();
-        out
+        scan_maps(
+            dir.path(),
+            name,
+            150,
+            &["--replicates", "15", "--threads", threads],
+        )
     };
     let (a, b) = (run("1", "one"), run("2", "two"));
     for f in [
@@ -158,19 +147,7 @@ fn same_seed_gives_identical_results_for_any_thread_count() {
 #[test]
 fn label_reads_curves_written_by_scan() {
     let dir = temp();
-    let data = dir.path().join("maps.csv");
-    std::fs::write(&data, coupled_logistic_csv(200)).unwrap();
-    let out = dir.path().join("run");
-    bin()
-        .args([
-            "scan",
-            data.to_str().unwrap(),
-            "--out",
-            out.to_str().unwrap(),
-        ])
-        .args(["--replicates", "20"])
-        .assert()
-        .success();
+    let out = scan_maps(dir.path(), "run", 200, &["--replicates", "20"]);
     let relabel = dir.path().join("relabel");
     bin()
         .args(["label", out.join("curves.csv").to_str().unwrap(), "--out"])
