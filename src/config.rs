@@ -40,7 +40,10 @@ pub fn parse_sizes(text: &str) -> anyhow::Result<LibrarySizes> {
         })?;
     if numbers.len() == 1 {
         if numbers[0] < 2 {
-            bail!("--sizes {}: at least 2 library sizes are needed to see convergence", numbers[0]);
+            bail!(
+                "--sizes {}: at least 2 library sizes are needed to see convergence",
+                numbers[0]
+            );
         }
         return Ok(LibrarySizes::Auto { count: numbers[0] });
     }

@@ -18,13 +18,16 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
         data,
         out: args.out.join("scan"),
         time_column: None,
+        shard: None,
         engine: default_engine(),
         verdict: VerdictArgs {
             model: None,
             review_band: "0.25,0.75".into(),
         },
     };
-    let first = STORY.lines().find(|l| !l.trim().is_empty() && !l.starts_with('#'));
+    let first = STORY
+        .lines()
+        .find(|l| !l.trim().is_empty() && !l.starts_with('#'));
     if let Some(line) = first {
         println!("{line}\n");
     }
@@ -87,7 +90,11 @@ fn answer_key() -> anyhow::Result<Vec<(String, String, String)>> {
         let f: Vec<&str> = line.split(',').collect();
         anyhow::ensure!(f.len() >= 3, "answer key row `{line}` is malformed");
         let k = f.len();
-        rows.push((f[k - 3].to_string(), f[k - 2].to_string(), f[k - 1].to_string()));
+        rows.push((
+            f[k - 3].to_string(),
+            f[k - 2].to_string(),
+            f[k - 1].to_string(),
+        ));
     }
     Ok(rows)
 }

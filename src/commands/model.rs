@@ -6,7 +6,10 @@ use anyhow::Context;
 use verdict_model::ModelBundle;
 
 /// The shipped model (trained by `ccm-triage train training-sim/specs/default.toml`).
-const BUILT_IN: &[u8] = include_bytes!(concat!(env!("CARGO_MANIFEST_DIR"), "/models/default-model.bin"));
+const BUILT_IN: &[u8] = include_bytes!(concat!(
+    env!("CARGO_MANIFEST_DIR"),
+    "/models/default-model.bin"
+));
 
 /// A loaded model and how to name it in outputs.
 pub struct LoadedModel {

@@ -113,7 +113,10 @@ pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
     let card = bundle.card();
     out.write_bytes("model-card.md", card.to_markdown().as_bytes())?;
     out.write_bytes("model-card.json", card.to_json()?.as_bytes())?;
-    out.write_bytes("reliability.svg", card.reliability_svg(Head::Full)?.as_bytes())?;
+    out.write_bytes(
+        "reliability.svg",
+        card.reliability_svg(Head::Full)?.as_bytes(),
+    )?;
     out.export(&CsvTable {
         name: "skipped-systems.csv".into(),
         header: vec!["system".into(), "reason".into()],
@@ -181,7 +184,11 @@ pub fn evaluate(args: EvaluateArgs, quiet: bool) -> anyhow::Result<()> {
             rule.push(if by_rule { 1.0 } else { 0.0 });
         }
     }
-    anyhow::ensure!(!p.is_empty(), "no pair of spec {} could be scored", args.spec.display());
+    anyhow::ensure!(
+        !p.is_empty(),
+        "no pair of spec {} could be scored",
+        args.spec.display()
+    );
     let ours = summarise(&p, &labels, &families, &review);
     let no_review = vec![false; rule.len()];
     let baseline = summarise(&rule, &labels, &families, &no_review);
@@ -191,8 +198,14 @@ pub fn evaluate(args: EvaluateArgs, quiet: bool) -> anyhow::Result<()> {
         out.export(&CsvTable {
             name: "predictions.csv".into(),
             header: [
-                "system", "driver_index", "response_index", "truth", "p_causal", "verdict",
-                "reasons", "rule_of_thumb",
+                "system",
+                "driver_index",
+                "response_index",
+                "truth",
+                "p_causal",
+                "verdict",
+                "reasons",
+                "rule_of_thumb",
             ]
             .iter()
             .map(|s| s.to_string())
@@ -216,15 +229,39 @@ fn comparison_table(ours: &Summary, rule: &Summary, skipped: usize) -> String {
     );
     let lines: [(&str, Option<f64>, Option<f64>); 10] = [
         ("ROC AUC", ours.roc_auc, rule.roc_auc),
-        ("accuracy (p >= 0.5)", Some(ours.accuracy), Some(rule.accuracy)),
+        (
+            "accuracy (p >= 0.5)",
+            Some(ours.accuracy),
+            Some(rule.accuracy),
+        ),
         ("Brier score", Some(ours.brier), Some(rule.brier)),
         ("expected calibration error", Some(ours.ece), Some(rule.ece)),
         ("log-loss", Some(ours.log_loss), Some(rule.log_loss)),
-        ("false-positive rate, confounded (p >= 0.5)", ours.fpr_confounded, rule.fpr_confounded),
-        ("recall, direct (p >= 0.5)", ours.recall_direct, rule.recall_direct),
-        ("false-positive rate, confounded (verdict)", ours.fpr_confounded_verdict, rule.fpr_confounded_verdict),
-        ("recall, direct (verdict)", ours.recall_direct_verdict, rule.recall_direct_verdict),
-        ("review rate", Some(ours.review_rate), Some(rule.review_rate)),
+        (
+            "false-positive rate, confounded (p >= 0.5)",
+            ours.fpr_confounded,
+            rule.fpr_confounded,
+        ),
+        (
+            "recall, direct (p >= 0.5)",
+            ours.recall_direct,
+            rule.recall_direct,
+        ),
+        (
+            "false-positive rate, confounded (verdict)",
+            ours.fpr_confounded_verdict,
+            rule.fpr_confounded_verdict,
+        ),
+        (
+            "recall, direct (verdict)",
+            ours.recall_direct_verdict,
+            rule.recall_direct_verdict,
+        ),
+        (
+            "review rate",
+            Some(ours.review_rate),
+            Some(rule.review_rate),
+        ),
     ];
     for (name, a, b) in lines {
         s.push_str(&format!("{name:<42} {:>10} {:>14}\n", f(a), f(b)));

@@ -25,7 +25,11 @@ pub fn curves(names: &[String], records: &[PairRecord]) -> CsvTable {
             }
         }
     }
-    table("curves.csv", &["driver", "response", "library_size", "replicate", "skill"], rows)
+    table(
+        "curves.csv",
+        &["driver", "response", "library_size", "replicate", "skill"],
+        rows,
+    )
 }
 
 /// `lags.csv`: the lag profile of each pair at its largest library size.
@@ -59,7 +63,11 @@ pub fn surrogates(names: &[String], records: &[PairRecord]) -> CsvTable {
             ]);
         }
     }
-    table("surrogates.csv", &["driver", "response", "surrogate", "skill"], rows)
+    table(
+        "surrogates.csv",
+        &["driver", "response", "surrogate", "skill"],
+        rows,
+    )
 }
 
 /// `embedding.csv`.
@@ -76,7 +84,11 @@ pub fn embedding(names: &[String], embeddings: &[Embedding]) -> CsvTable {
             ]
         })
         .collect();
-    table("embedding.csv", &["variable", "E", "tau", "simplex_skill"], rows)
+    table(
+        "embedding.csv",
+        &["variable", "E", "tau", "simplex_skill"],
+        rows,
+    )
 }
 
 /// `features.csv`: driver, response, then one column per feature (empty = unavailable).

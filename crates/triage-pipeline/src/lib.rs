@@ -8,6 +8,8 @@
 //! 3. [`assemble`]: pair each ensemble with its reverse direction and the series context, and
 //!    compute the features. Judging ([`judge`]) then applies a model.
 //!
+//! Units can be saved and reloaded losslessly ([`units`]) for sharded and resumable runs.
+//!
 //! Training feeds simulated systems through exactly the same three stages ([`training_set`]).
 #![deny(missing_docs)]
 
@@ -16,7 +18,7 @@ mod judge;
 mod quality;
 mod report_view;
 mod training;
-
+pub mod units;
 
 pub use assemble::{PairRecord, assemble, assemble_curves};
 pub use judge::{Judgement, judge, rule_of_thumb};
@@ -25,7 +27,6 @@ pub use report_view::{KEY_FEATURES, RunFacts, report_view};
 pub use training::{
     AnalysedSystem, SkippedSystem, analyse_systems, fine_label, series_of, training_set,
 };
-
 
 use crossmap_engine::{CrossMapParams, Embedding, EmbeddingSettings, PairEnsemble, ValidParams};
 
@@ -141,7 +142,8 @@ pub fn analyse(
             .into_par_iter()
             .flat_map_iter(|response| {
                 let unit = cross_map_unit(series, &embeddings, response, &params);
-                let n = done.fetch_add(unit.len(), std::sync::atomic::Ordering::Relaxed) + unit.len();
+                let n =
+                    done.fetch_add(unit.len(), std::sync::atomic::Ordering::Relaxed) + unit.len();
                 progress(n);
                 unit
             })

@@ -86,7 +86,10 @@ fn analyse_system(
     let analysis = analyse(&series, settings, &|_| {}).map_err(skip)?;
     let mut labels = Vec::with_capacity(analysis.pairs.len());
     for pair in &analysis.pairs {
-        let (d, r) = (&system.variables[pair.driver], &system.variables[pair.response]);
+        let (d, r) = (
+            &system.variables[pair.driver],
+            &system.variables[pair.response],
+        );
         let truth = system
             .truth
             .iter()
