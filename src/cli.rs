@@ -116,7 +116,9 @@ pub struct VerdictArgs {
 pub struct ScanArgs {
     /// Table of series: a header row, an optional time column, one column per series.
     pub data: PathBuf,
-    /// Output directory (created; existing result files are replaced atomically).
+    /// Output directory (created; existing result files are replaced atomically). Finished
+    /// work units are checkpointed in DIR/.checkpoint, so rerunning the same command after an
+    /// interruption resumes; run.json is written last and marks a complete run.
     #[arg(long, value_name = "DIR")]
     pub out: PathBuf,
     /// Name of the time column (default: a first column named `t` or `time`).

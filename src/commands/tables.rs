@@ -31,17 +31,20 @@ impl Export for CurvesTable<'_> {
         let names = self.names;
         let rows = self.records.iter().flat_map(move |rec| {
             let f = &rec.evidence.forward;
-            f.library_sizes.iter().zip(&f.skills).flat_map(move |(size, skills)| {
-                skills.iter().enumerate().map(move |(r, s)| {
-                    vec![
-                        names[rec.driver].clone(),
-                        names[rec.response].clone(),
-                        size.to_string(),
-                        (r + 1).to_string(),
-                        format_f64(*s),
-                    ]
+            f.library_sizes
+                .iter()
+                .zip(&f.skills)
+                .flat_map(move |(size, skills)| {
+                    skills.iter().enumerate().map(move |(r, s)| {
+                        vec![
+                            names[rec.driver].clone(),
+                            names[rec.response].clone(),
+                            size.to_string(),
+                            (r + 1).to_string(),
+                            format_f64(*s),
+                        ]
+                    })
                 })
-            })
         });
         write_csv_rows(
             w,
