@@ -3,6 +3,7 @@
 use std::path::PathBuf;
 
 use clap::{Args, Parser, Subcommand};
+use serde::{Deserialize, Serialize};
 
 /// Triage convergent cross mapping evidence for every ordered pair of variables.
 ///
@@ -34,6 +35,9 @@ pub enum Command {
     /// Compute curve-only features from a curves.csv table, without labelling.
     #[command(after_help = "Example:\n  ccm-triage features curves.csv --out feats")]
     Features(FeaturesArgs),
+    /// Combine the shard directories of `scan --shard I/N` runs into the files of one scan.
+    #[command(after_help = "Example:\n  ccm-triage merge run-shard1 run-shard2 --out run")]
+    Merge(MergeArgs),
     /// Simulate labelled coupled systems from a spec file.
     #[command(
         after_help = "Example:\n  ccm-triage simulate training-sim/specs/lab-example.toml --out sims"
@@ -60,8 +64,8 @@ pub enum Command {
     Demo(DemoArgs),
 }
 
-/// Options that fix the cross-map computation.
-#[derive(Debug, Clone, Args)]
+/// Options that fix the cross-map computation (recorded in shard manifests, hence serde).
+#[derive(Debug, Clone, Args, Serialize, Deserialize)]
 pub struct EngineArgs {
     /// Master seed of the random libraries and surrogates.
     #[arg(long, default_value_t = 1, value_name = "N")]
@@ -112,14 +116,37 @@ pub struct VerdictArgs {
 pub struct ScanArgs {
     /// Table of series: a header row, an optional time column, one column per series.
     pub data: PathBuf,
-    /// Output directory (created; existing result files are replaced atomically).
+    /// Output directory (created; existing result files are replaced atomically). Finished
+    /// work units are checkpointed in DIR/.checkpoint, so rerunning the same command after an
+    /// interruption resumes; run.json is written last and marks a complete run.
     #[arg(long, value_name = "DIR")]
     pub out: PathBuf,
     /// Name of the time column (default: a first column named `t` or `time`).
     #[arg(long, value_name = "NAME")]
     pub time_column: Option<String>,
+    /// Compute only shard I of N (1-based) into OUT as a shard directory, for `merge`.
+    /// Response manifolds are dealt round-robin: shard I takes columns I, I+N, I+2N, ...
+    #[arg(long, value_name = "I/N")]
+    pub shard: Option<String>,
     #[command(flatten)]
     pub engine: EngineArgs,
+    #[command(flatten)]
+    pub verdict: VerdictArgs,
+}
+
+/// `merge`.
+#[derive(Debug, Args)]
+pub struct MergeArgs {
+    /// Shard directories written by `scan --shard I/N` (all N of them, any order).
+    #[arg(required = true, value_name = "SHARD_DIR")]
+    pub shards: Vec<PathBuf>,
+    /// Output directory.
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+    /// The input table, when it is no longer at the path recorded by the shards (its
+    /// checksum must match).
+    #[arg(long, value_name = "PATH")]
+    pub data: Option<PathBuf>,
     #[command(flatten)]
     pub verdict: VerdictArgs,
 }

@@ -37,6 +37,7 @@ fn run(cli: cli::Cli) -> anyhow::Result<()> {
     let quiet = cli.quiet;
     match cli.command {
         cli::Command::Scan(args) => commands::scan(args, quiet),
+        cli::Command::Merge(args) => commands::merge(args, quiet),
         cli::Command::Label(args) => commands::label(args, quiet),
         cli::Command::Features(args) => commands::features(args),
         cli::Command::Simulate(args) => commands::simulate(args, quiet),

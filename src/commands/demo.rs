@@ -18,6 +18,7 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
         data,
         out: args.out.join("scan"),
         time_column: None,
+        shard: None,
         engine: default_engine(),
         verdict: VerdictArgs {
             model: None,

@@ -6,5 +6,5 @@ mod scan;
 mod simulate;
 mod tables;
 
-pub use scan::{features, label, scan};
+pub use scan::{features, label, merge, scan};
 pub use simulate::{demo, evaluate, model_card, simulate, train};

@@ -1,12 +1,16 @@
 //! `scan`, `label` and `features`: from a table (or ensembles) to labelled pairs and a report.
 
+use std::collections::BTreeMap;
 use std::path::Path;
+use std::sync::atomic::{AtomicUsize, Ordering};
 use std::time::Instant;
 
-use anyhow::Context;
-use crossmap_engine::Embedding;
+use anyhow::{Context, bail};
+use crossmap_engine::{Embedding, PairEnsemble};
 use ensemble_features::Ensemble;
+use rayon::prelude::*;
 use series_io::{JsonDocument, OutputDir, ReadOptions, TextDocument};
+use triage_pipeline::units::{self, InputIdentity, ShardSpec, StoreManifest, UnitStore};
 use triage_pipeline::{
     Judgement, PairRecord, QualityThresholds, RunFacts, SeriesSet, assemble_curves, judge,
     report_view,
@@ -15,7 +19,7 @@ use verdict_model::{Verdict, VerdictPolicy};
 
 use super::model::{self, LoadedModel};
 use super::tables;
-use crate::cli::{FeaturesArgs, LabelArgs, ScanArgs, VerdictArgs};
+use crate::cli::{EngineArgs, FeaturesArgs, LabelArgs, MergeArgs, ScanArgs, VerdictArgs};
 use crate::config;
 use crate::progress::Progress;
 
@@ -32,41 +36,291 @@ pub struct Outcome {
 }
 
 pub fn scan(args: ScanArgs, quiet: bool) -> anyhow::Result<()> {
+    if let Some(text) = &args.shard {
+        let shard = ShardSpec::parse(text)?;
+        return run_shard(&args, shard, quiet);
+    }
     let outcome = run_scan(&args, quiet)?;
     print_summary(&outcome, &args.out);
     Ok(())
 }
 
-/// The whole scan, writing every output file into `args.out`.
-pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
-    let started = Instant::now();
-    let settings = config::analysis_settings(&args.engine)?;
-    let policy = policy(&args.verdict)?;
-    let model = model::load(args.verdict.model.as_deref())?;
+/// Name of the checkpoint folder inside a scan's output directory.
+pub const CHECKPOINT_DIR: &str = ".checkpoint";
+
+/// The input and everything fixed before the cross maps: what every shard repeats.
+struct Prepared {
+    settings: triage_pipeline::AnalysisSettings,
+    table: series_io::SeriesTable,
+    series: SeriesSet,
+    embeddings: Vec<Embedding>,
+    params: crossmap_engine::ValidParams,
+    /// Identity of the run's work units (input checksum, settings, flags).
+    manifest: StoreManifest,
+}
+
+/// Read the table, embed every variable and resolve the parameters; `recorded_path` is the
+/// input path as written into the records (the path given to the first scan).
+fn prepare(
+    data: &Path,
+    recorded_path: &str,
+    time_column: Option<&str>,
+    engine: &EngineArgs,
+    shard: ShardSpec,
+) -> anyhow::Result<Prepared> {
+    let settings = config::analysis_settings(engine)?;
     let mut opts = ReadOptions::default();
-    if let Some(t) = &args.time_column {
-        opts = opts.with_time_column(t.clone());
+    if let Some(t) = time_column {
+        opts = opts.with_time_column(t.to_string());
     }
-    let table = series_io::read_series(&args.data, &opts)?;
+    let table = series_io::read_series(data, &opts)?;
     let series = SeriesSet {
         names: table.names.clone(),
         columns: table.columns.clone(),
     };
-    let n = series.names.len();
-    let bar = Progress::new(quiet, (n * (n - 1)) as u64, "cross maps");
-    let analysis = triage_pipeline::analyse(&series, &settings, &bar.callback())
-        .with_context(|| format!("cannot analyse {}", args.data.display()))?;
-    bar.finish();
-    let judgements = judge(&analysis.pairs, &model.bundle, &policy)?;
+    let context = || format!("cannot analyse {}", data.display());
+    let embeddings =
+        triage_pipeline::embed_all(&series, &settings.embedding).with_context(context)?;
+    let params = triage_pipeline::validate_params(&series, &embeddings, &settings.crossmap)
+        .with_context(context)?;
+    let manifest = StoreManifest {
+        format: units::UNITS_FORMAT.into(),
+        version: units::UNITS_VERSION,
+        tool_version: env!("CARGO_PKG_VERSION").into(),
+        input: InputIdentity {
+            path: recorded_path.to_string(),
+            sha256: table.sha256.clone(),
+            variables: table.names.clone(),
+        },
+        settings: settings_record(&settings, &params, &series.names),
+        flags: serde_json::json!({"engine": engine, "time_column": time_column}),
+        shard,
+        units: shard.units(series.names.len()),
+        complete: false,
+    };
+    Ok(Prepared {
+        settings,
+        table,
+        series,
+        embeddings,
+        params,
+        manifest,
+    })
+}
 
-    let out = OutputDir::create(&args.out)?;
-    let params = settings_record(&settings, &analysis.params, &series.names);
-    let run = serde_json::json!({
+/// Compute the manifest's units not yet in `store`, saving each as it finishes; returns all.
+fn compute_units(
+    store: &UnitStore,
+    p: &Prepared,
+    quiet: bool,
+) -> anyhow::Result<BTreeMap<usize, Vec<PairEnsemble>>> {
+    let mut done = store.begin(&p.manifest).with_context(|| {
+        format!(
+            "cannot resume from {} (delete that folder to start afresh)",
+            store.path().display()
+        )
+    })?;
+    let per_unit = p.series.names.len() - 1;
+    let todo: Vec<usize> = p
+        .manifest
+        .units
+        .iter()
+        .copied()
+        .filter(|u| !done.contains_key(u))
+        .collect();
+    let bar = Progress::new(
+        quiet,
+        (p.manifest.units.len() * per_unit) as u64,
+        "cross maps",
+    );
+    let finished = AtomicUsize::new(done.len() * per_unit);
+    let callback = bar.callback();
+    callback(finished.load(Ordering::Relaxed));
+    let fresh: Vec<(usize, Vec<PairEnsemble>)> = todo
+        .par_iter()
+        .map(|&unit| {
+            let ensembles =
+                triage_pipeline::cross_map_unit(&p.series, &p.embeddings, unit, &p.params);
+            store.save_unit(unit, &p.manifest.input, &ensembles)?;
+            callback(finished.fetch_add(ensembles.len(), Ordering::Relaxed) + ensembles.len());
+            Ok((unit, ensembles))
+        })
+        .collect::<Result<_, units::UnitsError>>()?;
+    drop(callback);
+    bar.finish();
+    done.extend(fresh);
+    Ok(done)
+}
+
+/// The whole scan, writing every output file into `args.out`.
+///
+/// Each finished unit is checkpointed into `OUT/.checkpoint/`; rerunning the same command
+/// after an interruption skips them. The folder is removed once run.json is written.
+pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
+    let started = Instant::now();
+    let policy = policy(&args.verdict)?;
+    let model = model::load(args.verdict.model.as_deref())?;
+    let recorded = args.data.display().to_string();
+    let prepared = prepare(
+        &args.data,
+        &recorded,
+        args.time_column.as_deref(),
+        &args.engine,
+        ShardSpec::WHOLE,
+    )?;
+    let out = begin_output(&args.out)?;
+    let store = UnitStore::open(out.path().join(CHECKPOINT_DIR))?;
+    let units = compute_units(&store, &prepared, quiet)?;
+    let ensembles: Vec<PairEnsemble> = units.into_values().flatten().collect();
+    let outcome = finish(
+        &out,
+        &prepared,
+        &ensembles,
+        &args.engine,
+        &policy,
+        &model,
+        "scan",
+        None,
+        started,
+    )?;
+    std::fs::remove_dir_all(store.path()).with_context(|| {
+        format!(
+            "cannot remove the finished checkpoint {}",
+            store.path().display()
+        )
+    })?;
+    Ok(outcome)
+}
+
+/// `scan --shard I/N`: this shard's units, embedding.csv and the manifest, into `args.out`.
+fn run_shard(args: &ScanArgs, shard: ShardSpec, quiet: bool) -> anyhow::Result<()> {
+    // Checked now so a bad flag fails before hours of work rather than at the merge.
+    policy(&args.verdict)?;
+    model::load(args.verdict.model.as_deref())?;
+    let recorded = args.data.display().to_string();
+    let prepared = prepare(
+        &args.data,
+        &recorded,
+        args.time_column.as_deref(),
+        &args.engine,
+        shard,
+    )?;
+    let store = UnitStore::open(&args.out)?;
+    let units = compute_units(&store, &prepared, quiet)?;
+    store.output().export(&tables::embedding(
+        &prepared.series.names,
+        &prepared.embeddings,
+    ))?;
+    let mut manifest = prepared.manifest.clone();
+    manifest.complete = true;
+    store.write_manifest(&manifest)?;
+    let names: Vec<&str> = units
+        .keys()
+        .map(|&u| prepared.series.names[u].as_str())
+        .collect();
+    println!(
+        "shard {shard}: {} response manifolds ({}) written to {}",
+        names.len(),
+        names.join(", "),
+        args.out.display()
+    );
+    println!(
+        "combine all {} shards with: ccm-triage merge SHARD_DIR... --out DIR",
+        shard.count
+    );
+    Ok(())
+}
+
+/// `merge`: the files of one scan from the shard directories of `scan --shard`.
+pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
+    let _ = quiet;
+    let started = Instant::now();
+    let policy = policy(&args.verdict)?;
+    let model = model::load(args.verdict.model.as_deref())?;
+    let plan = units::plan_merge(&args.shards)?;
+    let m = &plan.manifest;
+    let engine: EngineArgs = serde_json::from_value(m.flags["engine"].clone())
+        .context("the shard manifest's flags cannot be read; rerun the shards with this version")?;
+    let time_column = m.flags["time_column"].as_str();
+    let data = args
+        .data
+        .clone()
+        .unwrap_or_else(|| m.input.path.clone().into());
+    let prepared = prepare(&data, &m.input.path, time_column, &engine, ShardSpec::WHOLE)
+        .with_context(|| {
+            format!(
+                "cannot reload the input table {} the shards were computed from (pass --data PATH if it moved)",
+                data.display()
+            )
+        })?;
+    if prepared.manifest.input.sha256 != m.input.sha256 {
+        bail!(
+            "{} is not the table the shards were computed from (its sha256 is {}, the shards' is {});              pass the original file with --data PATH",
+            data.display(),
+            prepared.manifest.input.sha256,
+            m.input.sha256
+        );
+    }
+    anyhow::ensure!(
+        prepared.manifest.settings == m.settings,
+        "the settings resolved from {} differ from the shards' ones; rerun the shards with this version",
+        data.display()
+    );
+    let ensembles = units::load_merge(&args.shards, &plan)?;
+    let out = begin_output(&args.out)?;
+    let shards: Vec<String> = args
+        .shards
+        .iter()
+        .map(|d| d.display().to_string())
+        .collect();
+    let outcome = finish(
+        &out,
+        &prepared,
+        &ensembles,
+        &engine,
+        &policy,
+        &model,
+        "merge",
+        Some(serde_json::json!(shards)),
+        started,
+    )?;
+    print_summary(&outcome, &args.out);
+    Ok(())
+}
+
+/// The output directory, without a run.json from an earlier run: until this run writes its
+/// own run.json last, nothing in the folder looks complete.
+fn begin_output(dir: &Path) -> anyhow::Result<OutputDir> {
+    let out = OutputDir::create(dir)?;
+    let old = out.path().join("run.json");
+    if old.exists() {
+        std::fs::remove_file(&old).with_context(|| format!("cannot replace {}", old.display()))?;
+    }
+    Ok(out)
+}
+
+/// Stages 3 and 4 (assemble, judge) and every result file, the same for scan and merge.
+#[allow(clippy::too_many_arguments)]
+fn finish(
+    out: &OutputDir,
+    p: &Prepared,
+    ensembles: &[PairEnsemble],
+    engine: &EngineArgs,
+    policy: &VerdictPolicy,
+    model: &LoadedModel,
+    command: &str,
+    shards: Option<serde_json::Value>,
+    started: Instant,
+) -> anyhow::Result<Outcome> {
+    let pairs = triage_pipeline::assemble(&p.series, &p.embeddings, ensembles, &p.settings.quality);
+    let judgements = judge(&pairs, &model.bundle, policy)?;
+    let table = &p.table;
+    let mut run = serde_json::json!({
         "tool": "ccm-triage",
         "version": env!("CARGO_PKG_VERSION"),
-        "command": "scan",
+        "command": command,
         "input": {
-            "path": args.data.display().to_string(),
+            "path": p.manifest.input.path,
             "sha256": table.sha256,
             "rows": table.n_rows(),
             "time_column": table.time_column,
@@ -74,32 +328,35 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
             "missing_cells": table.missing,
             "missing_cells_total": table.total_missing(),
         },
-        "settings": params,
-        "embedding": embedding_record(&series.names, &analysis.embeddings),
-        "model": model_record(&model),
+        "settings": p.manifest.settings,
+        "embedding": embedding_record(&p.series.names, &p.embeddings),
+        "model": model_record(model),
         "review_band": [policy.band.0, policy.band.1],
         "feature_schema": {"version": ensemble_features::SCHEMA_VERSION, "hash": ensemble_features::schema_hash()},
-        "pairs": analysis.pairs.len(),
+        "pairs": pairs.len(),
         "timing": {"seconds": started.elapsed().as_secs_f64(), "threads": rayon::current_num_threads()},
     });
+    if let Some(shards) = shards {
+        run["shards"] = shards;
+    }
     let facts = RunFacts {
-        input_name: file_name(&args.data),
+        input_name: file_name(Path::new(&p.manifest.input.path)),
         input_sha256: Some(table.sha256.clone()),
         tool_version: env!("CARGO_PKG_VERSION").to_string(),
         model_identity: model.identity_line(),
-        params: display_params(&args.engine, &policy),
-        notes: missing_notes(&table.names, &table.missing, &analysis.embeddings),
+        params: display_params(engine, policy),
+        notes: missing_notes(&table.names, &table.missing, &p.embeddings),
     };
     write_results(
-        &out,
-        &series.names,
-        &analysis.embeddings,
-        &analysis.pairs,
+        out,
+        &p.series.names,
+        &p.embeddings,
+        &pairs,
         &judgements,
         &facts,
         &run,
     )?;
-    Ok(outcome(series.names, analysis.pairs, judgements))
+    Ok(outcome(p.series.names.clone(), pairs, judgements))
 }
 
 pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {

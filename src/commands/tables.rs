@@ -1,7 +1,7 @@
 //! The result tables of `scan` and `label`, as exportable files (formats in the README).
 
 use crossmap_engine::Embedding;
-use series_io::{CsvTable, format_f64};
+use series_io::{CsvTable, Export, format_f64, write_csv_rows};
 use triage_pipeline::{Judgement, PairRecord};
 
 fn opt(v: Option<f64>) -> String {
@@ -9,27 +9,49 @@ fn opt(v: Option<f64>) -> String {
 }
 
 /// `curves.csv`: one row per ensemble member; replicates are numbered from 1.
-pub fn curves(names: &[String], records: &[PairRecord]) -> CsvTable {
-    let mut rows = Vec::new();
-    for rec in records {
-        let f = &rec.evidence.forward;
-        for (size, skills) in f.library_sizes.iter().zip(&f.skills) {
-            for (r, s) in skills.iter().enumerate() {
-                rows.push(vec![
-                    names[rec.driver].clone(),
-                    names[rec.response].clone(),
-                    size.to_string(),
-                    (r + 1).to_string(),
-                    format_f64(*s),
-                ]);
-            }
-        }
+///
+/// Written row by row: at 100 variables the table has about 12 million rows, which as
+/// formatted fields held in memory would take several GiB.
+pub fn curves<'a>(names: &'a [String], records: &'a [PairRecord]) -> CurvesTable<'a> {
+    CurvesTable { names, records }
+}
+
+/// The `curves.csv` export, formatted while it is written.
+pub struct CurvesTable<'a> {
+    names: &'a [String],
+    records: &'a [PairRecord],
+}
+
+impl Export for CurvesTable<'_> {
+    fn file_name(&self) -> &str {
+        "curves.csv"
     }
-    table(
-        "curves.csv",
-        &["driver", "response", "library_size", "replicate", "skill"],
-        rows,
-    )
+
+    fn write_to(&self, w: &mut dyn std::io::Write) -> std::io::Result<()> {
+        let names = self.names;
+        let rows = self.records.iter().flat_map(move |rec| {
+            let f = &rec.evidence.forward;
+            f.library_sizes
+                .iter()
+                .zip(&f.skills)
+                .flat_map(move |(size, skills)| {
+                    skills.iter().enumerate().map(move |(r, s)| {
+                        vec![
+                            names[rec.driver].clone(),
+                            names[rec.response].clone(),
+                            size.to_string(),
+                            (r + 1).to_string(),
+                            format_f64(*s),
+                        ]
+                    })
+                })
+        });
+        write_csv_rows(
+            w,
+            &["driver", "response", "library_size", "replicate", "skill"],
+            rows,
+        )
+    }
 }
 
 /// `lags.csv`: the lag profile of each pair at its largest library size.

@@ -8,6 +8,8 @@
 //! 3. [`assemble`]: pair each ensemble with its reverse direction and the series context, and
 //!    compute the features. Judging ([`judge`]) then applies a model.
 //!
+//! Units can be saved and reloaded losslessly ([`units`]) for sharded and resumable runs.
+//!
 //! Training feeds simulated systems through exactly the same three stages ([`training_set`]).
 #![deny(missing_docs)]
 
@@ -16,6 +18,7 @@ mod judge;
 mod quality;
 mod report_view;
 mod training;
+pub mod units;
 
 pub use assemble::{PairRecord, assemble, assemble_curves};
 pub use judge::{Judgement, judge, rule_of_thumb};
