@@ -344,17 +344,25 @@ pub fn unit_file_name(unit: usize) -> String {
     format!("unit-{unit:05}.json")
 }
 
-/// Read a manifest file.
-pub fn read_manifest(path: &Path) -> Result<StoreManifest, UnitsError> {
+/// Read and parse one JSON file of a store; unreadable or unparsable files are typed errors.
+fn read_json<T: serde::de::DeserializeOwned>(path: &Path) -> Result<T, UnitsError> {
     let bytes = std::fs::read(path).map_err(|source| UnitsError::Io {
         path: path.to_path_buf(),
         source,
     })?;
+    serde_json::from_slice(&bytes).map_err(|e| UnitsError::Malformed {
+        path: path.to_path_buf(),
+        reason: e.to_string(),
+    })
+}
+
+/// Read a manifest file.
+pub fn read_manifest(path: &Path) -> Result<StoreManifest, UnitsError> {
     let malformed = |reason: String| UnitsError::Malformed {
         path: path.to_path_buf(),
         reason,
     };
-    let m: StoreManifest = serde_json::from_slice(&bytes).map_err(|e| malformed(e.to_string()))?;
+    let m: StoreManifest = read_json(path)?;
     if m.format != UNITS_FORMAT {
         return Err(malformed(format!(
             "format `{}`, expected `{UNITS_FORMAT}`",
@@ -379,15 +387,11 @@ fn read_unit(
     unit: usize,
     input: &InputIdentity,
 ) -> Result<Vec<PairEnsemble>, UnitsError> {
-    let bytes = std::fs::read(path).map_err(|source| UnitsError::Io {
-        path: path.to_path_buf(),
-        source,
-    })?;
     let malformed = |reason: String| UnitsError::Malformed {
         path: path.to_path_buf(),
         reason,
     };
-    let file: UnitFile = serde_json::from_slice(&bytes).map_err(|e| malformed(e.to_string()))?;
+    let file: UnitFile = read_json(path)?;
     if file.format != UNITS_FORMAT || file.version > UNITS_VERSION {
         return Err(malformed(format!(
             "format `{}` version {}",
