@@ -41,6 +41,33 @@ pub fn simplex_weights(neighbours: &[Neighbour], out: &mut Vec<f64>) {
 
 /// The value of `target` at time `t + lag`, if inside the series and finite.
 #[inline]
+/// The estimate of `target(t + lag)` at query `q` from its `k` nearest library neighbours whose
+/// target value exists (the slow path when a table neighbour's value is missing); `None` when
+/// fewer than `k` such neighbours exist.
+fn fallback_estimate(
+    index: &dyn NeighbourIndex,
+    library: &Library,
+    q: usize,
+    k: usize,
+    target: &[f64],
+    lag: i32,
+    s: &mut Scratch,
+) -> Option<f64> {
+    let m = index.manifold();
+    let accept = |p: usize| target_at(target, m.time(p), lag).is_some();
+    index.nearest(q, library, k, &accept, &mut s.nb);
+    if s.nb.len() < k {
+        return None;
+    }
+    simplex_weights(&s.nb, &mut s.w);
+    Some(
+        s.nb.iter()
+            .zip(&s.w)
+            .map(|(nb, &w)| w * target_at(target, m.time(nb.pos as usize), lag).expect("accepted"))
+            .sum(),
+    )
+}
+
 fn target_at(target: &[f64], t: usize, lag: i32) -> Option<f64> {
     let s = t as i64 + i64::from(lag);
     if s < 0 {
@@ -154,19 +181,10 @@ impl Table {
             if !ok {
                 // Rare path: a neighbour's target is missing or off the end, so take the next
                 // neighbour instead (re-query with the target's validity as a filter).
-                let accept = |p: usize| target_at(target, m.time(p), lag).is_some();
-                index.nearest(q, library, k, &accept, &mut s.nb);
-                if s.nb.len() < k {
-                    continue;
+                match fallback_estimate(index, library, q, k, target, lag, s) {
+                    Some(e) => est = e,
+                    None => continue,
                 }
-                simplex_weights(&s.nb, &mut s.w);
-                est =
-                    s.nb.iter()
-                        .zip(&s.w)
-                        .map(|(nb, &w)| {
-                            w * target_at(target, m.time(nb.pos as usize), lag).expect("accepted")
-                        })
-                        .sum();
             }
             if let Some(pq) = per_query.as_deref_mut() {
                 pq[q] = est;
@@ -218,17 +236,10 @@ impl Table {
                 let mut est = s.acc[d];
                 if !est.is_finite() {
                     // A neighbour's value is missing: take the next neighbour for this target.
-                    let accept = |p: usize| target_at(target, m.time(p), 0).is_some();
-                    index.nearest(q, library, k, &accept, &mut s.nb);
-                    if s.nb.len() < k {
-                        continue;
+                    match fallback_estimate(index, library, q, k, target, 0, s) {
+                        Some(e) => est = e,
+                        None => continue,
                     }
-                    simplex_weights(&s.nb, &mut s.w);
-                    est =
-                        s.nb.iter()
-                            .zip(&s.w)
-                            .map(|(nb, &w)| w * target[m.time(nb.pos as usize)])
-                            .sum();
                 }
                 s.multi_est[d].push(est);
                 s.multi_obs[d].push(obs);
