@@ -10,7 +10,10 @@ use crate::neighbours::{
     ExactScan, Library, Neighbour, NeighbourIndex, SortedLists, prefer_walk, walk_depth,
 };
 use crate::params::ValidParams;
-use crate::seeds::{TAG_LIBRARY, TAG_SURROGATE, keyed_rng, sample_without_replacement};
+use crate::season::{Season, season_for};
+use crate::seeds::{
+    TAG_LIBRARY, TAG_SEASONAL, TAG_SURROGATE, keyed_rng, sample_without_replacement,
+};
 use crate::stats::{finite_mean, pearson};
 use crate::surrogate::SurrogateMaker;
 use crate::{EngineError, PairEnsemble};
@@ -443,19 +446,34 @@ pub fn cross_map_response(
                 .collect()
         })
         .collect();
-    let surrogate_skills: Vec<f64> = if raw.surrogates == 0 {
-        Vec::new()
+    // Surrogate drivers at the largest size, two kinds per driver: phase-randomised (index
+    // j < surrogates) and seasonal (j >= surrogates), each keyed by (kind, driver, response, j).
+    let (surrogate_skills, seasonal_skills): (Vec<f64>, Vec<f64>) = if raw.surrogates == 0 {
+        (Vec::new(), Vec::new())
     } else {
         let maker = SurrogateMaker::new(params.n_points);
-        (0..drivers.len() * raw.surrogates)
+        let seasons: Vec<Option<Season>> = drivers
+            .iter()
+            .map(|&d| season_for(&series[d], raw.period))
+            .collect();
+        let per = 2 * raw.surrogates;
+        let all: Vec<f64> = (0..drivers.len() * per)
             .into_par_iter()
             .map_init(Scratch::default, |s, u| {
-                let (d, j) = (drivers[u / raw.surrogates], u % raw.surrogates);
-                let mut rng =
-                    keyed_rng(&[TAG_SURROGATE, raw.seed, d as u64, response as u64, j as u64]);
-                let surrogate = match raw.period {
-                    Some(p) => maker.seasonal(&series[d], p, &mut rng),
-                    None => maker.phase_randomised(&series[d], &mut rng),
+                let (di, j) = (u / per, u % per);
+                let d = drivers[di];
+                let surrogate = if j < raw.surrogates {
+                    let mut rng =
+                        keyed_rng(&[TAG_SURROGATE, raw.seed, d as u64, response as u64, j as u64]);
+                    maker.phase_randomised(&series[d], &mut rng)
+                } else {
+                    let Some(season) = seasons[di] else {
+                        return f64::NAN;
+                    };
+                    let j = (j - raw.surrogates) as u64;
+                    let mut rng =
+                        keyed_rng(&[TAG_SEASONAL, raw.seed, d as u64, response as u64, j]);
+                    maker.seasonal(&series[d], season.period, &mut rng)
                 };
                 let per_table: Vec<f64> = tables
                     .iter()
@@ -463,7 +481,13 @@ pub fn cross_map_response(
                     .collect();
                 finite_mean(&per_table)
             })
-            .collect()
+            .collect();
+        let (mut plain, mut seasonal) = (Vec::new(), Vec::new());
+        for chunk in all.chunks(per) {
+            plain.extend_from_slice(&chunk[..raw.surrogates]);
+            seasonal.extend_from_slice(&chunk[raw.surrogates..]);
+        }
+        (plain, seasonal)
     };
 
     let zero_lag = plan.max_lag;
@@ -491,10 +515,12 @@ pub fn cross_map_response(
             let lag_skills = (0..lags.len())
                 .map(|li| finite_mean(&per_table.iter().map(|row| row[li]).collect::<Vec<_>>()))
                 .collect();
-            let surrogate_skills = if raw.surrogates == 0 {
-                Vec::new()
-            } else {
-                surrogate_skills[di * raw.surrogates..(di + 1) * raw.surrogates].to_vec()
+            let own = |v: &[f64]| {
+                if raw.surrogates == 0 {
+                    Vec::new()
+                } else {
+                    v[di * raw.surrogates..(di + 1) * raw.surrogates].to_vec()
+                }
             };
             PairEnsemble {
                 driver,
@@ -503,7 +529,8 @@ pub fn cross_map_response(
                 skills,
                 lags: lags.clone(),
                 lag_skills,
-                surrogate_skills,
+                surrogate_skills: own(&surrogate_skills),
+                seasonal_surrogate_skills: own(&seasonal_skills),
             }
         })
         .collect()

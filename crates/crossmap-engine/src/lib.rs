@@ -48,6 +48,7 @@ mod crossmap;
 mod embed;
 pub mod neighbours;
 mod params;
+pub mod season;
 mod seeds;
 mod simplex;
 mod stats;
@@ -65,6 +66,7 @@ pub use params::{
     CrossMapParams, DEFAULT_LIBRARY_COUNT, DEFAULT_REPLICATES, LibrarySizes, MAX_AUTO_LAG,
     ResponsePlan, ValidParams, default_max_lag, log_spaced,
 };
+pub use season::{Season, detect_season, season_at, season_for};
 pub use simplex::{Forecast, simplex_forecast};
 pub use stats::pearson;
 
@@ -84,8 +86,12 @@ pub struct PairEnsemble {
     pub lags: Vec<i32>,
     /// Skill at each lag (mean over the largest size's replicates).
     pub lag_skills: Vec<f64>,
-    /// Skill of each surrogate driver at the largest size (mean over its replicate libraries).
+    /// Skill of each phase-randomised surrogate driver at the largest size (mean over its
+    /// replicate libraries).
     pub surrogate_skills: Vec<f64>,
+    /// Skill of each seasonal surrogate driver (the driver's mean cycle kept, see [`season`])
+    /// at the largest size; NaN when the driver is too short for a cycle.
+    pub seasonal_surrogate_skills: Vec<f64>,
 }
 
 /// Engine errors.

@@ -33,9 +33,11 @@ pub struct CrossMapParams {
     pub theiler: Option<usize>,
     /// Largest absolute cross-map lag; `None` chooses from the embedding.
     pub max_lag: Option<usize>,
-    /// Surrogate drivers per pair at the largest library size (0 = none).
+    /// Surrogate drivers of each kind (phase-randomised and seasonal) per pair at the largest
+    /// library size (0 = none).
     pub surrogates: usize,
-    /// Known period in time steps for seasonal surrogates; `None` uses phase randomisation.
+    /// Known period in time steps for the seasonal surrogates of every driver; `None` detects
+    /// each driver's dominant cycle ([`crate::season::detect_season`]).
     pub period: Option<usize>,
     /// Master seed.
     pub seed: u64,

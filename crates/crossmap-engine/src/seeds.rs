@@ -7,6 +7,8 @@ use rand_chacha::rand_core::{Rng, SeedableRng};
 pub(crate) const TAG_LIBRARY: u64 = 0x4c49_4252_4152_5931;
 /// Domain tag for surrogate series.
 pub(crate) const TAG_SURROGATE: u64 = 0x5355_5252_4f47_4154;
+/// Domain tag for seasonal surrogate series.
+pub(crate) const TAG_SEASONAL: u64 = 0x5345_4153_4f4e_414c;
 
 /// SplitMix64 finaliser (Steele, Lea & Flood 2014): a cheap, well-mixing bijection on u64.
 fn mix(mut z: u64) -> u64 {

@@ -1,5 +1,7 @@
-//! Surrogate drivers: Ebisuzaki (1997) phase randomisation and a seasonal variant.
+//! Surrogate drivers: Ebisuzaki (1997) phase randomisation and a seasonal variant
+//! (Deyle et al. 2016).
 
+use crate::season::mean_cycle;
 use crate::seeds::unit;
 use rand_chacha::ChaCha8Rng;
 use realfft::num_complex::Complex;
@@ -79,39 +81,17 @@ impl SurrogateMaker {
         out
     }
 
-    /// Seasonal surrogate for a known period: the mean seasonal cycle (phase-aligned with the
-    /// original) plus Ebisuzaki phase-randomised anomalies, so shared seasonality is kept and only
-    /// the anomalies' timing is destroyed.
-    pub fn seasonal(&self, x: &[f64], period: usize, rng: &mut ChaCha8Rng) -> Vec<f64> {
-        let cycle = seasonal_cycle(x, period);
-        let anomalies: Vec<f64> = x
-            .iter()
-            .enumerate()
-            .map(|(t, &v)| v - cycle[t % period])
-            .collect();
+    /// Seasonal surrogate (Deyle et al. 2016): the mean cycle by phase for `period` samples
+    /// (see [`crate::season::mean_cycle`], aligned with the original) plus Ebisuzaki
+    /// phase-randomised anomalies, so a shared rhythm is kept and only the anomalies' timing
+    /// is destroyed. Missing values stay missing at the same times.
+    pub fn seasonal(&self, x: &[f64], period: f64, rng: &mut ChaCha8Rng) -> Vec<f64> {
+        let cycle = mean_cycle(x, period);
+        let anomalies: Vec<f64> = x.iter().zip(&cycle).map(|(&v, &c)| v - c).collect();
         let mut out = self.phase_randomised(&anomalies, rng);
-        out.iter_mut()
-            .enumerate()
-            .for_each(|(t, v)| *v += cycle[t % period]);
+        out.iter_mut().zip(&cycle).for_each(|(v, &c)| *v += c);
         out
     }
-}
-
-/// Mean of the finite values at each phase `t mod period` (0 where a phase has none).
-pub fn seasonal_cycle(x: &[f64], period: usize) -> Vec<f64> {
-    let period = period.max(1);
-    let mut sum = vec![0.0; period];
-    let mut count = vec![0usize; period];
-    for (t, &v) in x.iter().enumerate() {
-        if v.is_finite() {
-            sum[t % period] += v;
-            count[t % period] += 1;
-        }
-    }
-    sum.iter()
-        .zip(&count)
-        .map(|(&s, &c)| if c > 0 { s / c as f64 } else { 0.0 })
-        .collect()
 }
 
 #[cfg(test)]
@@ -150,9 +130,9 @@ mod tests {
             .map(|t| (t % 12) as f64 + ((t * 7) % 5) as f64 * 0.1)
             .collect();
         x[5] = f64::NAN;
-        let s = SurrogateMaker::new(n).seasonal(&x, 12, &mut keyed_rng(&[3]));
+        let s = SurrogateMaker::new(n).seasonal(&x, 12.0, &mut keyed_rng(&[3]));
         assert!(s[5].is_nan());
-        let (c0, c1) = (seasonal_cycle(&x, 12), seasonal_cycle(&s, 12));
+        let (c0, c1) = (mean_cycle(&x, 12.0), mean_cycle(&s, 12.0));
         for (a, b) in c0.iter().zip(&c1) {
             assert!((a - b).abs() < 0.5, "{c0:?} vs {c1:?}");
         }

@@ -170,3 +170,78 @@ fn lorenz_simplex_picks_a_small_dimension_and_skill_decays_with_horizon() {
     );
     assert!(s1 > s10 && s10 > s40, "skills {s1} {s10} {s40}");
 }
+
+/// The design of Deyle et al. (2016): an environmental driver X is a 12-step seasonal cycle
+/// plus autocorrelated anomalies, and a chaotic Ricker population Y has its growth rate forced
+/// by the bare season, so X and Y share only the rhythm (no causal link), yet X cross-maps
+/// well from Y's states. The driver's cycle is found without being told (period 12), and the
+/// seasonal surrogates, which keep that cycle and scramble the anomalies, reach nearly the
+/// real skill: the rhythm alone explains it. When Y is forced by X itself, anomalies
+/// included, the real skill stands further above its seasonal surrogates.
+#[test]
+fn seasonal_surrogates_absorb_a_shared_rhythm_but_not_a_real_coupling() {
+    let n = 480;
+    let mut h = 0x2545_f491_4f6c_dd1du64;
+    let mut uniform = move || {
+        h ^= h << 13;
+        h ^= h >> 7;
+        h ^= h << 17;
+        (h >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+    };
+    let mut anomaly = 0.0;
+    let (season, x): (Vec<f64>, Vec<f64>) = (0..n + 100)
+        .map(|t| {
+            anomaly = 0.5 * anomaly + uniform();
+            let s = (2.0 * std::f64::consts::PI * t as f64 / 12.0).sin();
+            (s, s + anomaly)
+        })
+        .unzip();
+    let run = |forcing: &[f64]| {
+        let mut y = vec![0.5];
+        for t in 0..n + 99 {
+            y.push(y[t] * (3.0 * (1.0 + 0.2 * forcing[t]) * (1.0 - y[t])).exp());
+        }
+        let series = vec![x[100..].to_vec(), y[100..].to_vec()];
+        let settings = EmbeddingSettings {
+            e: Some(3),
+            tau: Some(1),
+            ..Default::default()
+        };
+        let emb: Vec<_> = series
+            .iter()
+            .map(|s| choose_embedding(s, &settings).unwrap())
+            .collect();
+        let params = CrossMapParams::default()
+            .with_library_sizes(LibrarySizes::Auto { count: 4 })
+            .with_replicates(5)
+            .with_surrogates(39, None)
+            .with_seed(3)
+            .validate(n, &emb)
+            .unwrap();
+        let pairs = cross_map_all(&series, &emb, &params, &|_| {});
+        let p = pair(&pairs, 0, 1).clone();
+        let real = mean(p.skills.last().unwrap());
+        (
+            real,
+            real - mean(&p.surrogate_skills),
+            real - mean(&p.seasonal_surrogate_skills),
+        )
+    };
+    let (real, phase, seasonal) = run(&season);
+    eprintln!(
+        "shared season: skill {real:.3}, excess over phase {phase:.3}, over seasonal {seasonal:.3}"
+    );
+    assert!(real > 0.3, "the shared rhythm should give skill: {real}");
+    let found = crossmap_engine::detect_season(&x[100..]).unwrap();
+    assert!((found.period - 12.0).abs() < 0.1, "{found:?}");
+    assert!(
+        phase.abs() < 0.15 && seasonal.abs() < 0.15,
+        "{phase} {seasonal}"
+    );
+    let (real_forced, _, seasonal_forced) = run(&x);
+    eprintln!("forced by X: skill {real_forced:.3}, excess over seasonal {seasonal_forced:.3}");
+    assert!(
+        seasonal_forced > seasonal,
+        "{seasonal_forced} vs {seasonal}"
+    );
+}
