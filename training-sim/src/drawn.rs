@@ -276,15 +276,23 @@ pub fn draw(spec: &Spec, index: usize, attempt: u32) -> DrawnParams {
             own_seasons = true;
         }
         Structure::Network => {
-            let k = d.int(3, 5) as usize;
+            let net = &spec.network;
+            let k = d.int(net.units.lo, net.units.hi) as usize;
             observed_units = vec![true; k];
-            if k < 5 && d.chance(0.3) {
+            // A hidden unit 30 % of the time (never at the default's largest size, 5, so the
+            // default draws stay as they were).
+            if k != 5 && d.chance(0.3) {
                 observed_units.push(false);
             }
             let n = observed_units.len();
+            let p_link = if net.link_probability.lo == net.link_probability.hi {
+                net.link_probability.lo
+            } else {
+                d.uniform(net.link_probability.lo, net.link_probability.hi)
+            };
             for a in 0..n {
                 for b in 0..n {
-                    if a != b && d.chance(0.3) {
+                    if a != b && d.chance(p_link) {
                         links.push((a, b, false));
                     }
                 }
@@ -402,11 +410,13 @@ pub fn draw(spec: &Spec, index: usize, attempt: u32) -> DrawnParams {
         });
     }
 
-    // Observed columns: the port always, some extra variables while at most six columns.
+    // Observed columns: the port always, some extra variables while at most six columns (or
+    // the number of observed units, when larger).
     let mut numbers: Vec<usize> = (1..=observed_units.iter().filter(|o| **o).count()).collect();
     d.shuffle(&mut numbers);
     let mut numbers = numbers.into_iter();
     let mut columns = observed_units.iter().filter(|o| **o).count();
+    let max_columns = columns.max(6);
     let names = family.var_names();
     let (extra, p_extra) = family.extra_observable();
     for (u, unit) in units.iter_mut().enumerate() {
@@ -420,7 +430,7 @@ pub fn draw(spec: &Spec, index: usize, attempt: u32) -> DrawnParams {
             name: format!("{}_{k}", names[port]),
         });
         for &v in extra {
-            if columns < 6 && d.chance(p_extra) {
+            if columns < max_columns && d.chance(p_extra) {
                 columns += 1;
                 unit.observed.push(ObservedVar {
                     state: v,

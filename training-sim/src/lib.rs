@@ -394,4 +394,19 @@ mod tests {
         }
         assert!(checked > 200, "{checked}");
     }
+
+    #[test]
+    fn large_networks_observe_one_column_per_unit() {
+        let spec = Spec::from_toml_str(
+            "seed = 3\n[network]\nunits = [10, 10]\n[structures]\none_way = 0\ntwo_way = 0\n\
+             synchrony = 0\nchain_observed = 0\nchain_hidden = 0\nchain3 = 0\nhidden_driver = 0\n\
+             shared_seasonality = 0\nshared_noise = 0\nindependent = 0\nsimilar_periods = 0\n\
+             network = 1\n[families.ricker]\ncount = 2\n",
+        )
+        .unwrap();
+        for system in simulate(&spec).unwrap() {
+            assert_eq!(system.variables.len(), 10, "{}", system.id);
+            assert_eq!(system.truth.len(), 90);
+        }
+    }
 }

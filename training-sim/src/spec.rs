@@ -160,6 +160,9 @@ macro_rules! spec_table {
     };
 }
 
+/// Most observed units a network system may have.
+pub const MAX_NETWORK_UNITS: u64 = 16;
+
 spec_table! {
     /// `[sampling]`: how long each record is and how it is taken.
     SamplingSpec {
@@ -182,6 +185,16 @@ spec_table! {
         /// Process noise: size of the random kick given to every state variable at every
         /// sampling step (log scale for populations, state scale otherwise).
         process: Range = Range::new(0.0, 0.02),
+    }
+}
+
+spec_table! {
+    /// `[network]`: size and wiring density of the `network` structure.
+    NetworkSpec {
+        /// Observed units of a network system.
+        units: IntRange = IntRange::new(3, 5),
+        /// Chance that each ordered pair of units is linked.
+        link_probability: Range = Range::new(0.3, 0.3),
     }
 }
 
@@ -426,6 +439,9 @@ pub struct Spec {
     /// Structure weights.
     #[serde(default)]
     pub structures: StructureWeights,
+    /// The `network` structure's size and density.
+    #[serde(default)]
+    pub network: NetworkSpec,
     /// Families and their parameter ranges.
     #[serde(default)]
     pub families: FamiliesSpec,
@@ -544,6 +560,25 @@ impl Spec {
         }
         c.int("sampling.transient", s.transient);
         c.within("sampling.missing", s.missing, 0.0, 0.5, "[0, 0.5]");
+        c.int("network.units", self.network.units);
+        if self.network.units.lo < 3 || self.network.units.hi > MAX_NETWORK_UNITS {
+            c.fail(SpecError::OutOfRange {
+                key: "network.units".into(),
+                value: if self.network.units.lo < 3 {
+                    self.network.units.lo as f64
+                } else {
+                    self.network.units.hi as f64
+                },
+                allowed: "[3, 16]",
+            });
+        }
+        c.within(
+            "network.link_probability",
+            self.network.link_probability,
+            0.0,
+            1.0,
+            "[0, 1]",
+        );
         for (key, r) in [
             ("noise.observation", self.noise.observation),
             ("noise.process", self.noise.process),
@@ -803,5 +838,22 @@ mod tests {
         let s = Spec::from_toml_str(MIN).unwrap();
         let back = Spec::from_toml_str(&toml::to_string(&s).unwrap()).unwrap();
         assert_eq!(s, back);
+    }
+
+    #[test]
+    fn network_size_is_checked() {
+        let ok = Spec::from_toml_str(&format!("{MIN}[network]\nunits = [8, 12]\n")).unwrap();
+        assert_eq!(ok.network.units, IntRange::new(8, 12));
+        for bad in [
+            "units = [2, 5]",
+            "units = [3, 17]",
+            "link_probability = 1.5",
+        ] {
+            let e = Spec::from_toml_str(&format!(
+                "seed = 1\n[network]\n{bad}\n[families.ricker]\ncount = 1\n"
+            ))
+            .unwrap_err();
+            assert!(matches!(e, SpecError::OutOfRange { .. }), "{bad}: {e}");
+        }
     }
 }
