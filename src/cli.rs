@@ -92,10 +92,11 @@ pub struct EngineArgs {
     /// Largest absolute cross-map lag of the lag profile (default: chosen from the embedding).
     #[arg(long, value_name = "K")]
     pub max_lag: Option<usize>,
-    /// Surrogate drivers per pair for the significance features.
+    /// Surrogate drivers of each kind (phase-randomised and seasonal) per pair.
     #[arg(long, default_value_t = 39, value_name = "N")]
     pub surrogates: usize,
-    /// Known seasonal period in time steps: surrogates keep the seasonal cycle.
+    /// Seasonal period in time steps that every variable's seasonal surrogates keep (default:
+    /// each variable's own dominant cycle, found from its periodogram).
     #[arg(long, value_name = "STEPS")]
     pub period: Option<usize>,
 }

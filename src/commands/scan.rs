@@ -312,7 +312,7 @@ fn finish(
     shards: Option<serde_json::Value>,
     started: Instant,
 ) -> anyhow::Result<Outcome> {
-    let pairs = triage_pipeline::assemble(&p.series, &p.embeddings, ensembles, &p.settings.quality);
+    let pairs = triage_pipeline::assemble(&p.series, &p.embeddings, ensembles, &p.settings);
     let judgements = judge(&pairs, &model.bundle, policy)?;
     let table = &p.table;
     let mut run = serde_json::json!({
@@ -611,12 +611,18 @@ fn display_params(e: &crate::cli::EngineArgs, policy: &VerdictPolicy) -> Vec<(St
         ("replicates per size".into(), e.replicates.to_string()),
         ("Theiler window".into(), auto(e.theiler_window)),
         ("largest cross-map lag".into(), auto(e.max_lag)),
-        ("surrogates per pair".into(), e.surrogates.to_string()),
+        (
+            "surrogates per pair".into(),
+            format!(
+                "{} phase-randomised + {} seasonal",
+                e.surrogates, e.surrogates
+            ),
+        ),
         (
             "seasonal period".into(),
             e.period
-                .map_or("none (phase-randomised surrogates)".into(), |p| {
-                    p.to_string()
+                .map_or("each variable's dominant cycle".into(), |p| {
+                    format!("{p} steps")
                 }),
         ),
         (

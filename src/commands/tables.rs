@@ -72,22 +72,33 @@ pub fn lags(names: &[String], records: &[PairRecord]) -> CsvTable {
     table("lags.csv", &["driver", "response", "lag", "skill"], rows)
 }
 
-/// `surrogates.csv`: the skill of each surrogate driver at the largest library size.
+/// `surrogates.csv`: the skill of each surrogate driver at the largest library size, of two
+/// kinds: `phase` (phase-randomised) and `seasonal` (the driver's cycle of `period` samples
+/// kept, anomalies phase-randomised).
 pub fn surrogates(names: &[String], records: &[PairRecord]) -> CsvTable {
     let mut rows = Vec::new();
     for rec in records {
-        for (k, s) in rec.evidence.surrogate_skills.iter().flatten().enumerate() {
-            rows.push(vec![
-                names[rec.driver].clone(),
-                names[rec.response].clone(),
-                (k + 1).to_string(),
-                format_f64(*s),
-            ]);
+        let (d, r) = (&names[rec.driver], &names[rec.response]);
+        let mut push = |kind: &str, period: String, skills: &[f64]| {
+            for (k, s) in skills.iter().enumerate() {
+                let row = [d, r, kind, &period, &(k + 1).to_string(), &format_f64(*s)];
+                rows.push(row.map(|c| c.to_string()).to_vec());
+            }
+        };
+        if let Some(skills) = &rec.evidence.surrogate_skills {
+            push("phase", String::new(), skills);
+        }
+        if let Some(seasonal) = &rec.evidence.seasonal {
+            push(
+                "seasonal",
+                format!("{:.3}", seasonal.driver.period),
+                &seasonal.skills,
+            );
         }
     }
     table(
         "surrogates.csv",
-        &["driver", "response", "surrogate", "skill"],
+        &["driver", "response", "kind", "period", "surrogate", "skill"],
         rows,
     )
 }

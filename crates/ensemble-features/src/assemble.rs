@@ -3,7 +3,7 @@
 use crate::schema::{FeatureGroup, index_of, schema};
 use crate::shape::{CurveShape, curve_shape};
 use crate::stats::{finite, mean, sd};
-use crate::{FeatureError, LagProfile, PairContext, PairEvidence};
+use crate::{FeatureError, LagProfile, PairContext, PairEvidence, SeasonalEvidence};
 
 /// Clamp for surrogate z-scores: beyond it every pair is equally significant, and unclamped
 /// values explode when surrogate skills are nearly identical.
@@ -36,6 +36,13 @@ pub fn available_groups(evidence: &PairEvidence) -> Vec<FeatureGroup> {
     {
         groups.push(FeatureGroup::Surrogate);
     }
+    if evidence
+        .seasonal
+        .as_ref()
+        .is_some_and(|s| s.skills.iter().any(|v| v.is_finite()))
+    {
+        groups.push(FeatureGroup::Seasonal);
+    }
     if evidence.context.is_some() {
         groups.push(FeatureGroup::Context);
     }
@@ -50,7 +57,7 @@ pub fn try_compute(evidence: &PairEvidence) -> Result<Vec<Option<f64>>, FeatureE
         rev.validate()
             .map_err(|e| FeatureError::Reverse(Box::new(e)))?;
     }
-    if let Some(lag) = &evidence.lag {
+    for lag in [&evidence.lag, &evidence.reverse_lag].into_iter().flatten() {
         lag.validate()?;
     }
     Ok(compute(evidence))
@@ -81,10 +88,13 @@ pub fn compute(evidence: &PairEvidence) -> Vec<Option<f64>> {
         set_contrast(&mut row, &fwd, &curve_shape(rev));
     }
     if let Some(lag) = &evidence.lag {
-        set_lag(&mut row, lag);
+        set_lag(&mut row, lag, evidence.reverse_lag.as_ref());
     }
     if let Some(surr) = &evidence.surrogate_skills {
-        set_surrogate(&mut row, fwd.final_mean, surr);
+        set_surrogate(&mut row, "surrogate", fwd.final_mean, surr);
+    }
+    if let Some(seasonal) = &evidence.seasonal {
+        set_seasonal(&mut row, fwd.final_mean, seasonal);
     }
     if let Some(ctx) = &evidence.context {
         set_context(&mut row, fwd.final_mean, ctx);
@@ -150,10 +160,20 @@ fn set_contrast(row: &mut Row, f: &CurveShape, r: &CurveShape) {
     row.set("diff_kendall_tau", diff(f.kendall_tau, r.kendall_tau));
 }
 
+/// The best lag of a profile and what it implies.
+struct BestLag {
+    lag: i32,
+    skill: f64,
+    /// `lag` over the largest absolute lag computed (`None` when only lag 0 was computed).
+    scaled: Option<f64>,
+    /// Skill at the best lag minus skill at lag 0.
+    gap: Option<f64>,
+}
+
 /// Best lag: the highest finite skill; ties go to the lag nearest zero, then to the negative
 /// one, because an unresolved tie should not suggest a delay the data do not show.
-fn set_lag(row: &mut Row, p: &LagProfile) {
-    let best = p
+fn best_lag(p: &LagProfile) -> Option<BestLag> {
+    let (&lag, &skill) = p
         .lags
         .iter()
         .zip(&p.skills)
@@ -162,10 +182,7 @@ fn set_lag(row: &mut Row, p: &LagProfile) {
             a.1.total_cmp(b.1)
                 .then_with(|| b.0.abs().cmp(&a.0.abs()))
                 .then_with(|| b.0.cmp(a.0))
-        });
-    let Some((&lag, &skill)) = best else {
-        return;
-    };
+        })?;
     let max_abs = p.lags.iter().map(|l| l.unsigned_abs()).max().unwrap_or(0);
     let at_zero = p
         .lags
@@ -173,21 +190,37 @@ fn set_lag(row: &mut Row, p: &LagProfile) {
         .zip(&p.skills)
         .find(|(l, s)| **l == 0 && s.is_finite())
         .map(|(_, s)| *s);
-    row.set("lag_best", Some(f64::from(lag)));
-    row.set(
-        "lag_best_scaled",
-        (max_abs > 0).then(|| f64::from(lag) / f64::from(max_abs)),
-    );
-    row.set("lag_best_skill", Some(skill));
-    row.set("lag_gap", at_zero.map(|z| skill - z));
+    Some(BestLag {
+        lag,
+        skill,
+        scaled: (max_abs > 0).then(|| f64::from(lag) / f64::from(max_abs)),
+        gap: at_zero.map(|z| skill - z),
+    })
 }
 
-fn set_surrogate(row: &mut Row, real: Option<f64>, surrogates: &[f64]) {
+fn set_lag(row: &mut Row, forward: &LagProfile, reverse: Option<&LagProfile>) {
+    let Some(f) = best_lag(forward) else {
+        return;
+    };
+    row.set("lag_best", Some(f64::from(f.lag)));
+    row.set("lag_best_scaled", f.scaled);
+    row.set("lag_best_skill", Some(f.skill));
+    row.set("lag_gap", f.gap);
+    if let Some(r) = reverse.and_then(best_lag) {
+        row.set("rev_lag_best_scaled", r.scaled);
+        row.set("rev_lag_gap", r.gap);
+        row.set("diff_lag_best_scaled", diff(f.scaled, r.scaled));
+    }
+}
+
+/// `<prefix>_mean`, `_percentile`, `_p` and `_z` of a real skill against surrogate skills.
+fn set_surrogate(row: &mut Row, prefix: &str, real: Option<f64>, surrogates: &[f64]) {
     let s = finite(surrogates);
     if s.is_empty() {
         return;
     }
-    row.set("surrogate_mean", mean(&s));
+    let name = |stat: &str| format!("{prefix}_{stat}");
+    row.set(&name("mean"), mean(&s));
     let Some(real) = real else {
         return;
     };
@@ -195,10 +228,10 @@ fn set_surrogate(row: &mut Row, real: Option<f64>, surrogates: &[f64]) {
     let below = s.iter().filter(|v| **v < real).count() as f64;
     let ties = s.iter().filter(|v| **v == real).count() as f64;
     let at_or_above = s.iter().filter(|v| **v >= real).count() as f64;
-    row.set("surrogate_percentile", Some((below + 0.5 * ties) / n));
+    row.set(&name("percentile"), Some((below + 0.5 * ties) / n));
     // Permutation p-value with the +1 correction, so it is never exactly zero (common
     // practice; Davison & Hinkley 1997, section 4.2, from memory).
-    row.set("surrogate_p", Some((1.0 + at_or_above) / (1.0 + n)));
+    row.set(&name("p"), Some((1.0 + at_or_above) / (1.0 + n)));
     let z = match (mean(&s), sd(&s)) {
         (Some(m), Some(sdv)) if sdv > 0.0 => Some(((real - m) / sdv).clamp(-Z_CLAMP, Z_CLAMP)),
         (Some(m), Some(_)) => Some(if real == m {
@@ -208,7 +241,25 @@ fn set_surrogate(row: &mut Row, real: Option<f64>, surrogates: &[f64]) {
         }),
         _ => None,
     };
-    row.set("surrogate_z", z);
+    row.set(&name("z"), z);
+}
+
+/// Clamp of the period mismatch: beyond a factor of e^3 (about 20) rhythms are simply unrelated.
+const PERIOD_MISMATCH_CLAMP: f64 = 3.0;
+
+fn set_seasonal(row: &mut Row, real: Option<f64>, s: &SeasonalEvidence) {
+    set_surrogate(row, "seasonal", real, &s.skills);
+    row.set(
+        "seasonal_gap",
+        real.zip(mean(&finite(&s.skills))).map(|(r, m)| r - m),
+    );
+    row.set("cycle_strength_driver", Some(s.driver.strength));
+    row.set("cycle_strength_response", Some(s.response.strength));
+    let ratio = s.driver.period / s.response.period;
+    row.set(
+        "cycle_period_mismatch",
+        (ratio > 0.0).then(|| ratio.ln().abs().min(PERIOD_MISMATCH_CLAMP)),
+    );
 }
 
 fn set_context(row: &mut Row, real: Option<f64>, c: &PairContext) {
@@ -235,6 +286,12 @@ fn set_context(row: &mut Row, real: Option<f64>, c: &PairContext) {
         "skill_minus_abs_correlation",
         real.zip(corr).map(|(r, c)| r - c.abs()),
     );
+    let common = c
+        .common_driver_skill
+        .is_finite()
+        .then_some(c.common_driver_skill);
+    row.set("common_driver_skill", common);
+    row.set("common_driver_margin", diff(real, common));
 }
 
 #[cfg(test)]
@@ -308,6 +365,7 @@ mod tests {
             simplex_driver: f64::NAN,
             simplex_response: 0.01,
             correlation: f64::NAN,
+            common_driver_skill: 0.0,
         });
         let row = compute(&ev);
         assert!(get(&row, "correlation").is_none());

@@ -190,6 +190,31 @@ pub struct PairContext {
     pub simplex_response: f64,
     /// Pearson correlation of the two raw series over shared non-missing points.
     pub correlation: f64,
+    /// Largest, over the other observed variables W, of min(skill W -> driver, skill W ->
+    /// response) at the largest library size; 0 when no other variable is observed (no
+    /// observed candidate for a common driver).
+    pub common_driver_skill: f64,
+}
+
+/// A series' dominant cycle.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Cycle {
+    /// Period in samples.
+    pub period: f64,
+    /// Share of the variance the mean cycle carries, in [0, 1].
+    pub strength: f64,
+}
+
+/// Seasonal-surrogate evidence for one ordered pair.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SeasonalEvidence {
+    /// One skill per seasonal surrogate driver at the largest library size, the same statistic
+    /// as `skill_final_mean`.
+    pub skills: Vec<f64>,
+    /// The driver's dominant cycle (the one its seasonal surrogates keep).
+    pub driver: Cycle,
+    /// The response's dominant cycle.
+    pub response: Cycle,
 }
 
 /// Everything known about one ordered pair driver -> response.
@@ -201,10 +226,14 @@ pub struct PairEvidence {
     pub reverse: Option<Ensemble>,
     /// Lag profile for driver -> response, when computed.
     pub lag: Option<LagProfile>,
+    /// Lag profile for the reverse hypothesis response -> driver, when computed.
+    pub reverse_lag: Option<LagProfile>,
     /// One skill per surrogate driver at the largest library size, when computed. Each value
     /// must be the same statistic as the real one it is compared with: the replicate mean of
     /// skill at the largest L (`skill_final_mean`).
     pub surrogate_skills: Option<Vec<f64>>,
+    /// Seasonal-surrogate skills and the two series' cycles, when computed.
+    pub seasonal: Option<SeasonalEvidence>,
     /// Facts about the two series, when the series themselves were seen (not for curves
     /// read from elsewhere).
     pub context: Option<PairContext>,
@@ -218,7 +247,9 @@ impl PairEvidence {
             forward,
             reverse,
             lag: None,
+            reverse_lag: None,
             surrogate_skills: None,
+            seasonal: None,
             context: None,
         }
     }

@@ -14,17 +14,20 @@ pub enum FeatureGroup {
     Lag,
     /// Needs surrogate skills.
     Surrogate,
+    /// Needs seasonal-surrogate skills and the two series' dominant cycles.
+    Seasonal,
     /// Needs the series themselves.
     Context,
 }
 
 impl FeatureGroup {
     /// Every group, in schema order.
-    pub const ALL: [FeatureGroup; 5] = [
+    pub const ALL: [FeatureGroup; 6] = [
         FeatureGroup::Curve,
         FeatureGroup::Contrast,
         FeatureGroup::Lag,
         FeatureGroup::Surrogate,
+        FeatureGroup::Seasonal,
         FeatureGroup::Context,
     ];
 
@@ -35,6 +38,7 @@ impl FeatureGroup {
             FeatureGroup::Contrast => "contrast",
             FeatureGroup::Lag => "lag",
             FeatureGroup::Surrogate => "surrogate",
+            FeatureGroup::Seasonal => "seasonal",
             FeatureGroup::Context => "context",
         }
     }
@@ -59,7 +63,7 @@ pub struct FeatureDef {
 }
 
 /// Schema version; bump on any change of names, order or meaning.
-pub const SCHEMA_VERSION: u32 = 1;
+pub const SCHEMA_VERSION: u32 = 2;
 
 const fn def(
     name: &'static str,
@@ -75,12 +79,12 @@ const fn def(
     }
 }
 
-use FeatureGroup::{Context, Contrast, Curve, Lag, Surrogate};
+use FeatureGroup::{Context, Contrast, Curve, Lag, Seasonal, Surrogate};
 
 /// Column order of `features.csv`. "Skill" is the forward cross-map skill (driver estimated
 /// from the response's manifold); L is the library size; "mean curve" is the replicate mean
 /// at each L.
-static SCHEMA: [FeatureDef; 61] = [
+static SCHEMA: [FeatureDef; 74] = [
     // Plateau.
     def(
         "skill_final_mean",
@@ -354,6 +358,24 @@ static SCHEMA: [FeatureDef; 61] = [
         "[0, 2]",
         Lag,
     ),
+    def(
+        "rev_lag_best_scaled",
+        "reverse direction: best cross-map lag divided by the largest absolute lag computed",
+        "[-1, 1]",
+        Lag,
+    ),
+    def(
+        "rev_lag_gap",
+        "reverse direction: skill at its best lag minus skill at lag 0",
+        "[0, 2]",
+        Lag,
+    ),
+    def(
+        "diff_lag_best_scaled",
+        "lag_best_scaled minus rev_lag_best_scaled: negative when the driver leads in both views (Ye et al. 2015)",
+        "[-2, 2]",
+        Lag,
+    ),
     // Significance against surrogate drivers.
     def(
         "surrogate_percentile",
@@ -378,6 +400,55 @@ static SCHEMA: [FeatureDef; 61] = [
         "mean skill of the surrogate drivers",
         "[-1, 1]",
         Surrogate,
+    ),
+    // Significance against seasonal surrogates (Deyle et al. 2016): the driver's mean cycle kept.
+    def(
+        "seasonal_percentile",
+        "share of seasonal-surrogate skills below skill_final_mean (ties count half)",
+        "[0, 1]",
+        Seasonal,
+    ),
+    def(
+        "seasonal_z",
+        "(skill_final_mean - seasonal-surrogate mean) / seasonal-surrogate SD, clamped",
+        "[-10, 10]",
+        Seasonal,
+    ),
+    def(
+        "seasonal_p",
+        "one-sided seasonal-surrogate p-value (1 + #surrogates >= skill_final_mean) / (1 + #surrogates)",
+        "(0, 1]",
+        Seasonal,
+    ),
+    def(
+        "seasonal_mean",
+        "mean skill of the seasonal-surrogate drivers: what the driver's regular cycle alone achieves",
+        "[-1, 1]",
+        Seasonal,
+    ),
+    def(
+        "seasonal_gap",
+        "skill_final_mean minus seasonal_mean: skill beyond the driver's regular cycle",
+        "[-2, 2]",
+        Seasonal,
+    ),
+    def(
+        "cycle_strength_driver",
+        "share of the driver's variance carried by its dominant cycle (adjusted R-squared of the mean cycle by phase)",
+        "[0, 1]",
+        Seasonal,
+    ),
+    def(
+        "cycle_strength_response",
+        "share of the response's variance carried by its dominant cycle",
+        "[0, 1]",
+        Seasonal,
+    ),
+    def(
+        "cycle_period_mismatch",
+        "abs(ln(driver period / response period)) of the two dominant cycles, clamped (0: same rhythm)",
+        "[0, 3]",
+        Seasonal,
     ),
     // Context from the series themselves.
     def(
@@ -450,6 +521,18 @@ static SCHEMA: [FeatureDef; 61] = [
         "skill_minus_abs_correlation",
         "skill_final_mean minus abs_correlation: cross-map skill beyond plain correlation",
         "[-2, 1]",
+        Context,
+    ),
+    def(
+        "common_driver_skill",
+        "largest, over the other observed variables W, of the smaller of skill W -> driver and skill W -> response at the largest L; 0 when no other variable is observed",
+        "[-1, 1]",
+        Context,
+    ),
+    def(
+        "common_driver_margin",
+        "skill_final_mean minus common_driver_skill: skill beyond what an observed common driver explains",
+        "[-2, 2]",
         Context,
     ),
 ];
@@ -556,7 +639,12 @@ pub fn schema_markdown() -> String {
             FeatureGroup::Contrast => "the reverse ensemble as well",
             FeatureGroup::Lag => "a lag profile at the largest L",
             FeatureGroup::Surrogate => "surrogate-driver skills at the largest L",
-            FeatureGroup::Context => "the series themselves (length, embeddings, correlation)",
+            FeatureGroup::Seasonal => {
+                "seasonal-surrogate skills at the largest L and both series' dominant cycles"
+            }
+            FeatureGroup::Context => {
+                "the series themselves (length, embeddings, correlation) and the other pairs' skills"
+            }
         };
         let avail = if g.is_curve_only() { "yes" } else { "no" };
         s.push_str(&format!("| {} | {} | {} |\n", g.label(), need, avail));

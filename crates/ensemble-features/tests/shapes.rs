@@ -5,8 +5,8 @@
 //! al. 2015: the best cross-map lag of a true driver is not positive).
 
 use ensemble_features::{
-    Ensemble, FeatureGroup, LagProfile, PairContext, PairEvidence, available_groups, compute,
-    index_of, schema, try_compute,
+    Cycle, Ensemble, FeatureGroup, LagProfile, PairContext, PairEvidence, SeasonalEvidence,
+    available_groups, compute, index_of, schema, try_compute,
 };
 use proptest::prelude::*;
 
@@ -170,6 +170,21 @@ fn context() -> PairContext {
         simplex_driver: 0.9,
         simplex_response: 0.5,
         correlation: -0.3,
+        common_driver_skill: 0.2,
+    }
+}
+
+fn seasonal() -> SeasonalEvidence {
+    SeasonalEvidence {
+        skills: vec![0.1, 0.2, 0.3, 0.4],
+        driver: Cycle {
+            period: 12.0,
+            strength: 0.6,
+        },
+        response: Cycle {
+            period: 6.0,
+            strength: 0.3,
+        },
     }
 }
 
@@ -179,7 +194,14 @@ fn full_evidence() -> PairEvidence {
         forward: rising(),
         reverse: Some(flat_near_zero()),
         lag: Some(lag_profile()),
+        reverse_lag: Some(LagProfile {
+            lags: (-5..=5).collect(),
+            skills: (-5..=5)
+                .map(|l| 0.3 - 0.01 * f64::from((l - 1) * (l - 1)))
+                .collect(),
+        }),
         surrogate_skills: Some((0..100).map(|_| 0.05 + 0.05 * rng.next()).collect()),
+        seasonal: Some(seasonal()),
         context: Some(context()),
     }
 }
@@ -205,6 +227,18 @@ fn contrast_lag_surrogate_and_context_read_as_drawn() {
     let real = f("skill_final_mean");
     assert!((f("skill_minus_abs_correlation") - (real - 0.3)).abs() < 1e-12);
     assert!((f("skill_over_simplex_response") - real / 0.5).abs() < 1e-12);
+    // Reverse lag profile peaks at +1 of 5; the forward one at -2 of 5.
+    assert!((f("rev_lag_best_scaled") - 0.2).abs() < 1e-12);
+    assert!((f("rev_lag_gap") - 0.01).abs() < 1e-12);
+    assert!((f("diff_lag_best_scaled") + 0.6).abs() < 1e-12);
+    // Seasonal surrogates 0.1..0.4 all lie below the real skill.
+    assert_eq!(f("seasonal_percentile"), 1.0);
+    assert!((f("seasonal_p") - 0.2).abs() < 1e-12);
+    assert!((f("seasonal_gap") - (real - 0.25)).abs() < 1e-12);
+    assert_eq!(f("cycle_strength_driver"), 0.6);
+    assert!((f("cycle_period_mismatch") - 2f64.ln()).abs() < 1e-12);
+    assert_eq!(f("common_driver_skill"), 0.2);
+    assert!((f("common_driver_margin") - (real - 0.2)).abs() < 1e-12);
 }
 
 /// Every subset of the optional evidence: features of a missing group are `None`, all others
@@ -212,18 +246,23 @@ fn contrast_lag_surrogate_and_context_read_as_drawn() {
 #[test]
 fn missing_groups_blank_exactly_their_features() {
     let full = full_evidence();
-    for mask in 0u8..16 {
+    for mask in 0u8..32 {
         let ev = PairEvidence {
             forward: full.forward.clone(),
             reverse: full.reverse.clone().filter(|_| mask & 1 != 0),
             lag: full.lag.clone().filter(|_| mask & 2 != 0),
+            reverse_lag: full.reverse_lag.clone().filter(|_| mask & 1 != 0),
             surrogate_skills: full.surrogate_skills.clone().filter(|_| mask & 4 != 0),
+            seasonal: full.seasonal.clone().filter(|_| mask & 16 != 0),
             context: full.context.filter(|_| mask & 8 != 0),
         };
         let groups = available_groups(&ev);
         let values = compute(&ev);
         for (def, value) in schema().iter().zip(&values) {
-            let present = groups.contains(&def.group);
+            // Lag features of the reverse direction need the reverse ensemble's lag profile too.
+            let needs_reverse = def.name.starts_with("rev_lag") || def.name.starts_with("diff_lag");
+            let present = groups.contains(&def.group)
+                && (!needs_reverse || groups.contains(&FeatureGroup::Contrast));
             assert_eq!(
                 value.is_some(),
                 present,

@@ -1,10 +1,12 @@
 //! Stage 3: pair each ensemble with its reverse direction and context, then compute features.
 
-use crossmap_engine::{Embedding, PairEnsemble};
-use ensemble_features::{Ensemble, LagProfile, PairContext, PairEvidence};
+use std::collections::BTreeMap;
+
+use crossmap_engine::{Embedding, PairEnsemble, Season};
+use ensemble_features::{Cycle, Ensemble, LagProfile, PairContext, PairEvidence, SeasonalEvidence};
 use verdict_model::QualityFlags;
 
-use crate::{QualityThresholds, SeriesSet, quality_flags};
+use crate::{AnalysisSettings, QualityThresholds, SeriesSet, quality_flags};
 
 /// One ordered pair driver -> response with everything known about it.
 #[derive(Debug, Clone, PartialEq)]
@@ -21,29 +23,54 @@ pub struct PairRecord {
     pub quality: QualityFlags,
 }
 
+/// The dominant cycle of every variable, in column order: at the known period when one is
+/// given, else detected ([`crossmap_engine::season_for`]). The engine's seasonal surrogates
+/// keep these same cycles.
+pub fn cycles(series: &SeriesSet, known_period: Option<usize>) -> Vec<Option<Season>> {
+    series
+        .columns
+        .iter()
+        .map(|c| crossmap_engine::season_for(c, known_period))
+        .collect()
+}
+
 /// Turn the engine's ensembles (any order, any subset of pairs) into pair records ordered by
 /// (driver, response). A pair whose reverse direction is absent gets no contrast features.
 pub fn assemble(
     series: &SeriesSet,
     embeddings: &[Embedding],
     ensembles: &[PairEnsemble],
-    thresholds: &QualityThresholds,
+    settings: &AnalysisSettings,
 ) -> Vec<PairRecord> {
-    let mut by_pair: std::collections::BTreeMap<(usize, usize), &PairEnsemble> =
-        std::collections::BTreeMap::new();
-    for e in ensembles {
-        by_pair.insert((e.driver, e.response), e);
-    }
+    let by_pair: BTreeMap<(usize, usize), &PairEnsemble> = ensembles
+        .iter()
+        .map(|e| ((e.driver, e.response), e))
+        .collect();
+    let final_skill: BTreeMap<(usize, usize), f64> =
+        by_pair.iter().map(|(&k, e)| (k, final_mean(e))).collect();
+    let cycles = cycles(series, settings.crossmap.period);
+    let lag_of = |e: &PairEnsemble| {
+        (!e.lags.is_empty()).then(|| LagProfile {
+            lags: e.lags.clone(),
+            skills: e.lag_skills.clone(),
+        })
+    };
     by_pair
         .iter()
         .map(|(&(driver, response), forward)| {
-            let reverse = by_pair.get(&(response, driver)).map(|r| curve(r));
-            let lag = (!forward.lags.is_empty()).then(|| LagProfile {
-                lags: forward.lags.clone(),
-                skills: forward.lag_skills.clone(),
-            });
+            let backward = by_pair.get(&(response, driver));
             let surrogate_skills =
                 (!forward.surrogate_skills.is_empty()).then(|| forward.surrogate_skills.clone());
+            let seasonal = match (&cycles[driver], &cycles[response]) {
+                (Some(d), Some(r)) if !forward.seasonal_surrogate_skills.is_empty() => {
+                    Some(SeasonalEvidence {
+                        skills: forward.seasonal_surrogate_skills.clone(),
+                        driver: cycle(d),
+                        response: cycle(r),
+                    })
+                }
+                _ => None,
+            };
             let (ed, er) = (&embeddings[driver], &embeddings[response]);
             let context = PairContext {
                 n_points: series.len(),
@@ -57,17 +84,62 @@ pub fn assemble(
                     &series.columns[driver],
                     &series.columns[response],
                 ),
+                common_driver_skill: common_driver_skill(&final_skill, driver, response),
             };
             let evidence = PairEvidence {
                 forward: curve(forward),
-                reverse,
-                lag,
+                reverse: backward.map(|r| curve(r)),
+                lag: lag_of(forward),
+                reverse_lag: backward.and_then(|r| lag_of(r)),
                 surrogate_skills,
+                seasonal,
                 context: Some(context),
             };
-            record(driver, response, evidence, thresholds)
+            record(driver, response, evidence, &settings.quality)
         })
         .collect()
+}
+
+/// Mean skill at the largest library size (NaN when none is defined).
+fn final_mean(e: &PairEnsemble) -> f64 {
+    let finite: Vec<f64> = e
+        .skills
+        .last()
+        .map(|row| row.iter().copied().filter(|v| v.is_finite()).collect())
+        .unwrap_or_default();
+    if finite.is_empty() {
+        f64::NAN
+    } else {
+        finite.iter().sum::<f64>() / finite.len() as f64
+    }
+}
+
+/// max over observed W not in {driver, response} of min(skill W -> driver, skill W ->
+/// response); 0 when there is no such W with both skills defined.
+fn common_driver_skill(
+    final_skill: &BTreeMap<(usize, usize), f64>,
+    driver: usize,
+    response: usize,
+) -> f64 {
+    final_skill
+        .iter()
+        .filter(|((w, target), _)| *target == driver && *w != response)
+        .filter_map(|(&(w, _), &to_driver)| {
+            let to_response = *final_skill.get(&(w, response))?;
+            let both = to_driver.min(to_response);
+            both.is_finite().then_some(both)
+        })
+        .fold(None, |best: Option<f64>, v| {
+            Some(best.map_or(v, |b| b.max(v)))
+        })
+        .unwrap_or(0.0)
+}
+
+fn cycle(s: &Season) -> Cycle {
+    Cycle {
+        period: s.period,
+        strength: s.strength,
+    }
 }
 
 /// Pair records for ensembles computed elsewhere (curve-only evidence).
@@ -80,13 +152,10 @@ pub fn assemble_curves(
     index
         .iter()
         .map(|(&(driver, response), forward)| {
-            let evidence = PairEvidence {
-                forward: (*forward).clone(),
-                reverse: index.get(&(response, driver)).map(|e| (*e).clone()),
-                lag: None,
-                surrogate_skills: None,
-                context: None,
-            };
+            let evidence = PairEvidence::curve_only(
+                (*forward).clone(),
+                index.get(&(response, driver)).map(|e| (*e).clone()),
+            );
             record(driver, response, evidence, thresholds)
         })
         .collect()

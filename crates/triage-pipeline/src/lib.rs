@@ -20,7 +20,7 @@ mod report_view;
 mod training;
 pub mod units;
 
-pub use assemble::{PairRecord, assemble, assemble_curves};
+pub use assemble::{PairRecord, assemble, assemble_curves, cycles};
 pub use judge::{Judgement, judge, rule_of_thumb};
 pub use quality::{QualityThresholds, quality_flags};
 pub use report_view::{KEY_FEATURES, RunFacts, report_view};
@@ -149,7 +149,7 @@ pub fn analyse(
             })
             .collect()
     };
-    let pairs = assemble(series, &embeddings, &ensembles, &settings.quality);
+    let pairs = assemble(series, &embeddings, &ensembles, settings);
     Ok(Analysis {
         embeddings,
         params,

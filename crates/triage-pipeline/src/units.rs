@@ -20,7 +20,7 @@ pub const MANIFEST_FILE: &str = "manifest.json";
 /// Format tag of manifests and unit files.
 pub const UNITS_FORMAT: &str = "ccm-triage-units";
 /// Version of the unit-store layout; readers refuse newer versions.
-pub const UNITS_VERSION: u32 = 1;
+pub const UNITS_VERSION: u32 = 2;
 
 /// Errors of unit stores and shard merging.
 #[derive(Debug, thiserror::Error)]
@@ -530,6 +530,7 @@ struct StoredEnsemble {
     lags: Vec<i32>,
     lag_skills: Vec<String>,
     surrogate_skills: Vec<String>,
+    seasonal_surrogate_skills: Vec<String>,
 }
 
 fn encode(v: &[f64]) -> Vec<String> {
@@ -555,6 +556,7 @@ impl From<&PairEnsemble> for StoredEnsemble {
             lags: e.lags.clone(),
             lag_skills: encode(&e.lag_skills),
             surrogate_skills: encode(&e.surrogate_skills),
+            seasonal_surrogate_skills: encode(&e.seasonal_surrogate_skills),
         }
     }
 }
@@ -577,6 +579,7 @@ impl StoredEnsemble {
             lags: self.lags,
             lag_skills: decode(&self.lag_skills)?,
             surrogate_skills: decode(&self.surrogate_skills)?,
+            seasonal_surrogate_skills: decode(&self.seasonal_surrogate_skills)?,
         })
     }
 }
@@ -617,6 +620,7 @@ mod tests {
             lags: vec![-1, 0, 1],
             lag_skills: vec![0.5, 1.0 / 3.0, f64::NEG_INFINITY],
             surrogate_skills: vec![5e-324],
+            seasonal_surrogate_skills: vec![0.25, f64::NAN],
         }
     }
 
@@ -624,6 +628,7 @@ mod tests {
         let mut v: Vec<u64> = e.skills.iter().flatten().map(|x| x.to_bits()).collect();
         v.extend(e.lag_skills.iter().map(|x| x.to_bits()));
         v.extend(e.surrogate_skills.iter().map(|x| x.to_bits()));
+        v.extend(e.seasonal_surrogate_skills.iter().map(|x| x.to_bits()));
         v
     }
 
