@@ -11,6 +11,13 @@ pub const DEFAULT_MAX_E: usize = 10;
 /// chosen (common practice: prefer the simplest model that forecasts about as well as the best).
 pub const PARSIMONY_TOLERANCE: f64 = 0.02;
 
+/// Smallest automatically chosen dimension. A one-coordinate manifold cannot separate states
+/// that differ only in a driver's influence, so a response whose own dynamics forecast as well
+/// at E = 1 (a one-dimensional map, say) would hide every driver; E = 2 gives the driver's
+/// footprint a coordinate (Sugihara et al. 2012 cross-map their coupled logistic maps at E = 2).
+/// The simplex skill at E = 1 is still computed and reported.
+pub const MIN_AUTO_E: usize = 2;
+
 /// Upper bound on the automatically chosen delay, in time steps.
 pub const MAX_AUTO_TAU: usize = 50;
 
@@ -231,7 +238,7 @@ pub fn auto_tau_bound(n: usize, max_e: usize) -> usize {
 /// `settings.e`, else simplex projection (Sugihara & May 1990) one step ahead over E = 1..=max_e
 /// with the whole series as library (Theiler exclusion per `settings.theiler`, default
 /// [`default_theiler`]), choosing the smallest E whose skill is at least
-/// `best - PARSIMONY_TOLERANCE * |best|`.
+/// `best - PARSIMONY_TOLERANCE * |best|`, and at least [`MIN_AUTO_E`].
 pub fn choose_embedding(x: &[f64], settings: &EmbeddingSettings) -> Result<Embedding, EngineError> {
     if settings.e == Some(0) {
         return Err(EngineError::EmbeddingDimensionZero);
@@ -281,11 +288,20 @@ pub fn choose_embedding(x: &[f64], settings: &EmbeddingSettings) -> Result<Embed
         return Err(first_err.unwrap_or(EngineError::NoForecastSkill));
     }
     let bar = best - PARSIMONY_TOLERANCE * best.abs();
+    let floor = if settings.e.is_some() {
+        1
+    } else {
+        MIN_AUTO_E.min(max_e)
+    };
     let e = candidates
         .iter()
         .copied()
         .find(|&e| skill_by_e[e - 1] >= bar)
-        .expect("the best E passes its own bar");
+        .expect("the best E passes its own bar")
+        .max(floor);
+    if !skill_by_e[e - 1].is_finite() {
+        return Err(first_err.unwrap_or(EngineError::NoForecastSkill));
+    }
     let manifold = Manifold::new(x, e, tau)?;
     Ok(Embedding {
         e,

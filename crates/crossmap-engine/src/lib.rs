@@ -8,8 +8,8 @@
 //!
 //! Documented rules:
 //! - delay: first lag where the autocorrelation falls below 1/e, bounded ([`choose_tau`]);
-//! - dimension: smallest E in 1..=10 whose one-step simplex skill is within 2% of the best
-//!   ([`choose_embedding`], [`PARSIMONY_TOLERANCE`]);
+//! - dimension: smallest E in 1..=10 whose one-step simplex skill is within 2% of the best, and
+//!   at least 2 ([`choose_embedding`], [`PARSIMONY_TOLERANCE`], [`MIN_AUTO_E`]);
 //! - Theiler window: `tau (E - 1)` by default ([`default_theiler`]), the point itself always out;
 //! - neighbours: E+1, ranked by (distance, position); weights `exp(-d_i/d_1)`, and when `d_1 = 0`
 //!   equal weight on the zero-distance neighbours ([`simplex_weights`]);
@@ -59,8 +59,8 @@ pub use crossmap::{
     simplex_weights,
 };
 pub use embed::{
-    DEFAULT_MAX_E, Embedding, EmbeddingSettings, MAX_AUTO_TAU, Manifold, PARSIMONY_TOLERANCE,
-    auto_tau_bound, choose_embedding, choose_tau, default_theiler,
+    DEFAULT_MAX_E, Embedding, EmbeddingSettings, MAX_AUTO_TAU, MIN_AUTO_E, Manifold,
+    PARSIMONY_TOLERANCE, auto_tau_bound, choose_embedding, choose_tau, default_theiler,
 };
 pub use params::{
     CrossMapParams, DEFAULT_LIBRARY_COUNT, DEFAULT_REPLICATES, LibrarySizes, MAX_AUTO_LAG,
