@@ -39,8 +39,28 @@ pub fn simplex_weights(neighbours: &[Neighbour], out: &mut Vec<f64>) {
     out.iter_mut().for_each(|w| *w /= s);
 }
 
-/// The value of `target` at time `t + lag`, if inside the series and finite.
+/// [`simplex_weights`] into a slice of the same length as `neighbours` (non-empty), given
+/// `exp_neg1 = exp(-1)`; bit-identical to it.
 #[inline]
+fn weights_into(neighbours: &[Neighbour], exp_neg1: f64, out: &mut [f64]) {
+    let d1 = neighbours[0].dist;
+    if d1 > 0.0 {
+        for (w, n) in out.iter_mut().zip(neighbours) {
+            *w = if n.dist == d1 {
+                exp_neg1
+            } else {
+                (-n.dist / d1).exp()
+            };
+        }
+    } else {
+        for (w, n) in out.iter_mut().zip(neighbours) {
+            *w = if n.dist == 0.0 { 1.0 } else { 0.0 };
+        }
+    }
+    let s: f64 = out.iter().sum();
+    out.iter_mut().for_each(|w| *w /= s);
+}
+
 /// The estimate of `target(t + lag)` at query `q` from its `k` nearest library neighbours whose
 /// target value exists (the slow path when a table neighbour's value is missing); `None` when
 /// fewer than `k` such neighbours exist.
@@ -68,6 +88,8 @@ fn fallback_estimate(
     )
 }
 
+/// The value of `target` at time `t + lag`, if inside the series and finite.
+#[inline]
 fn target_at(target: &[f64], t: usize, lag: i32) -> Option<f64> {
     let s = t as i64 + i64::from(lag);
     if s < 0 {
@@ -88,6 +110,7 @@ pub(crate) struct Table {
 #[derive(Default)]
 pub(crate) struct Scratch {
     nb: Vec<Neighbour>,
+    rows: Vec<Neighbour>,
     w: Vec<f64>,
     est: Vec<f64>,
     obs: Vec<f64>,
@@ -118,31 +141,57 @@ impl TimeMajor {
 }
 
 impl Table {
+    fn empty(k: usize) -> Self {
+        Table {
+            k,
+            pos: Vec::new(),
+            weight: Vec::new(),
+            full: Vec::new(),
+        }
+    }
+
     pub(crate) fn build(
         index: &dyn NeighbourIndex,
         library: &Library,
         k: usize,
         s: &mut Scratch,
     ) -> Self {
+        let mut t = Table::empty(k);
+        t.rebuild(index, library, k, s);
+        t
+    }
+
+    /// Fill this table for `library`, reusing its buffers; equal to [`Table::build`].
+    pub(crate) fn rebuild(
+        &mut self,
+        index: &dyn NeighbourIndex,
+        library: &Library,
+        k: usize,
+        s: &mut Scratch,
+    ) {
         let n = index.manifold().len();
-        let mut t = Table {
-            k,
-            pos: vec![0; n * k],
-            weight: vec![0.0; n * k],
-            full: vec![false; n],
-        };
+        self.k = k;
+        index.nearest_every(library, k, &mut s.rows, &mut self.full);
+        // Entries of positions that are not full are never read, so stale values may stay.
+        self.pos.resize(n * k, 0);
+        self.weight.resize(n * k, 0.0);
+        if k == 0 {
+            return;
+        }
+        // exp(-d_i / d_1) is exactly exp(-1) whenever d_i == d_1 (always so for the first
+        // neighbour): one call here instead of one per query, with identical bits.
+        let exp_neg1 = std::hint::black_box(-1.0f64).exp();
         for q in 0..n {
-            index.nearest_all(q, library, k, &mut s.nb);
-            if s.nb.len() == k {
-                simplex_weights(&s.nb, &mut s.w);
-                t.full[q] = true;
-                for (j, (nb, &w)) in s.nb.iter().zip(&s.w).enumerate() {
-                    t.pos[q * k + j] = nb.pos;
-                    t.weight[q * k + j] = w;
-                }
+            if !self.full[q] {
+                continue;
+            }
+            let row = &s.rows[q * k..(q + 1) * k];
+            let w = &mut self.weight[q * k..(q + 1) * k];
+            weights_into(row, exp_neg1, w);
+            for (slot, nb) in self.pos[q * k..(q + 1) * k].iter_mut().zip(row) {
+                *slot = nb.pos;
             }
         }
-        t
     }
 
     /// Estimates of `target(t + lag)` per query position (NaN where unpredictable), written to
@@ -411,13 +460,16 @@ pub fn cross_map_response(
         .collect();
     let unit_skills: Vec<Vec<f64>> = units
         .par_iter()
-        .map_init(Scratch::default, |s, &(li, r)| {
-            let l = sizes[li];
-            let lib = draw_library(raw.seed, response, l, r, n);
-            let index = index_for(l);
-            let table = Table::build(index, &lib, k, s);
-            table.skills_fused(index, &lib, &columns, &time_major, s)
-        })
+        .map_init(
+            || (Scratch::default(), Table::empty(k)),
+            |(s, table), &(li, r)| {
+                let l = sizes[li];
+                let lib = draw_library(raw.seed, response, l, r, n);
+                let index = index_for(l);
+                table.rebuild(index, &lib, k, s);
+                table.skills_fused(index, &lib, &columns, &time_major, s)
+            },
+        )
         .collect();
 
     // The largest size: tables kept for lags and surrogates.
