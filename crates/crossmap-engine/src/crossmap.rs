@@ -11,7 +11,7 @@ use crate::neighbours::{
 };
 use crate::params::ValidParams;
 use crate::seeds::{TAG_LIBRARY, TAG_SURROGATE, keyed_rng, sample_without_replacement};
-use crate::stats::{finite_mean, pearson};
+use crate::stats::{FinitePairs, finite_mean};
 use crate::surrogate::SurrogateMaker;
 use crate::{EngineError, PairEnsemble};
 use rayon::prelude::*;
@@ -112,11 +112,9 @@ pub(crate) struct Scratch {
     nb: Vec<Neighbour>,
     rows: Vec<Neighbour>,
     w: Vec<f64>,
-    est: Vec<f64>,
-    obs: Vec<f64>,
+    pairs: FinitePairs,
     acc: Vec<f64>,
-    multi_est: Vec<Vec<f64>>,
-    multi_obs: Vec<Vec<f64>>,
+    multi: Vec<FinitePairs>,
 }
 
 /// Driver values laid out time-major (`vals[t * count + j]`), so one neighbour's values for every
@@ -195,7 +193,7 @@ impl Table {
     }
 
     /// Estimates of `target(t + lag)` per query position (NaN where unpredictable), written to
-    /// `s.est`/`s.obs` as aligned pairs; `per_query`, when given, receives the estimate by position.
+    /// `s.pairs` as aligned (estimate, observation) pairs; `per_query`, when given, receives the estimate by position.
     pub(crate) fn estimate(
         &self,
         index: &dyn NeighbourIndex,
@@ -207,8 +205,7 @@ impl Table {
     ) {
         let m = index.manifold();
         let k = self.k;
-        s.est.clear();
-        s.obs.clear();
+        s.pairs.clear();
         for q in 0..m.len() {
             if !self.full[q] {
                 continue;
@@ -238,8 +235,7 @@ impl Table {
             if let Some(pq) = per_query.as_deref_mut() {
                 pq[q] = est;
             }
-            s.est.push(est);
-            s.obs.push(obs);
+            s.pairs.push(est, obs);
         }
     }
 
@@ -255,12 +251,8 @@ impl Table {
     ) -> Vec<f64> {
         let m = index.manifold();
         let (k, dn) = (self.k, tm.count);
-        s.multi_est.resize_with(dn, Vec::new);
-        s.multi_obs.resize_with(dn, Vec::new);
-        s.multi_est
-            .iter_mut()
-            .chain(s.multi_obs.iter_mut())
-            .for_each(Vec::clear);
+        s.multi.resize_with(dn, FinitePairs::default);
+        s.multi.iter_mut().for_each(FinitePairs::clear);
         s.acc.clear();
         s.acc.resize(dn, 0.0);
         for q in 0..m.len() {
@@ -290,12 +282,11 @@ impl Table {
                         None => continue,
                     }
                 }
-                s.multi_est[d].push(est);
-                s.multi_obs[d].push(obs);
+                s.multi[d].push(est, obs);
             }
         }
         (0..dn)
-            .map(|d| pearson(&s.multi_est[d], &s.multi_obs[d]))
+            .map(|d| s.multi[d].r())
             .collect()
     }
 
@@ -308,7 +299,7 @@ impl Table {
         s: &mut Scratch,
     ) -> f64 {
         self.estimate(index, library, target, lag, s, None);
-        pearson(&s.est, &s.obs)
+        s.pairs.r()
     }
 }
 
@@ -377,8 +368,8 @@ pub(crate) fn estimate_with(
     }
     CrossMapEstimate {
         estimates,
-        skill: pearson(&s.est, &s.obs),
-        predicted: s.est.len(),
+        skill: s.pairs.r(),
+        predicted: s.pairs.len(),
     }
 }
 
