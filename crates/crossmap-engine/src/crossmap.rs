@@ -285,9 +285,7 @@ impl Table {
                 s.multi[d].push(est, obs);
             }
         }
-        (0..dn)
-            .map(|d| s.multi[d].r())
-            .collect()
+        (0..dn).map(|d| s.multi[d].r()).collect()
     }
 
     pub(crate) fn skill(

@@ -561,28 +561,31 @@ impl NeighbourIndex for SortedLists<'_> {
         full: &mut Vec<bool>,
     ) {
         let m = self.manifold;
-        if k == 0 {
+        if k == 0 || k > K_MAX {
             return default_nearest_every(self, library, k, rows, full);
         }
         size_rows(m.len(), k, rows, full);
         let mut fallback = Vec::new();
         let flags = library.flags();
+        let mut hits = [0u32; K_MAX];
         for (q, row_out) in rows.chunks_exact_mut(k).enumerate() {
             let row = &self.lists[q * self.depth..q * self.depth + self.lens[q] as usize];
-            let qp = m.point(q);
             let mut cnt = 0;
+            // Branch-free membership step: write every candidate, advance only past members
+            // (random membership would otherwise mispredict about once per member found).
             for &p in row {
-                let pu = p as usize;
-                if flags[pu] {
-                    row_out[cnt] = Neighbour {
-                        pos: p,
-                        dist: sq_dist(qp, m.point(pu)).sqrt(),
-                    };
-                    cnt += 1;
-                    if cnt == k {
-                        break;
-                    }
+                hits[cnt] = p;
+                cnt += usize::from(flags[p as usize]);
+                if cnt == k {
+                    break;
                 }
+            }
+            let qp = m.point(q);
+            for (slot, &p) in row_out.iter_mut().zip(&hits[..cnt]) {
+                *slot = Neighbour {
+                    pos: p,
+                    dist: sq_dist(qp, m.point(p as usize)).sqrt(),
+                };
             }
             if cnt < k && !self.complete(q) {
                 scan_into(
