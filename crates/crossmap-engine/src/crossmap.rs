@@ -14,7 +14,7 @@ use crate::season::{Season, season_for};
 use crate::seeds::{
     TAG_LIBRARY, TAG_SEASONAL, TAG_SURROGATE, keyed_rng, sample_without_replacement,
 };
-use crate::stats::{finite_mean, pearson};
+use crate::stats::{FinitePairs, finite_mean};
 use crate::surrogate::SurrogateMaker;
 use crate::{EngineError, PairEnsemble};
 use rayon::prelude::*;
@@ -42,8 +42,28 @@ pub fn simplex_weights(neighbours: &[Neighbour], out: &mut Vec<f64>) {
     out.iter_mut().for_each(|w| *w /= s);
 }
 
-/// The value of `target` at time `t + lag`, if inside the series and finite.
+/// [`simplex_weights`] into a slice of the same length as `neighbours` (non-empty), given
+/// `exp_neg1 = exp(-1)`; bit-identical to it.
 #[inline]
+fn weights_into(neighbours: &[Neighbour], exp_neg1: f64, out: &mut [f64]) {
+    let d1 = neighbours[0].dist;
+    if d1 > 0.0 {
+        for (w, n) in out.iter_mut().zip(neighbours) {
+            *w = if n.dist == d1 {
+                exp_neg1
+            } else {
+                (-n.dist / d1).exp()
+            };
+        }
+    } else {
+        for (w, n) in out.iter_mut().zip(neighbours) {
+            *w = if n.dist == 0.0 { 1.0 } else { 0.0 };
+        }
+    }
+    let s: f64 = out.iter().sum();
+    out.iter_mut().for_each(|w| *w /= s);
+}
+
 /// The estimate of `target(t + lag)` at query `q` from its `k` nearest library neighbours whose
 /// target value exists (the slow path when a table neighbour's value is missing); `None` when
 /// fewer than `k` such neighbours exist.
@@ -71,6 +91,8 @@ fn fallback_estimate(
     )
 }
 
+/// The value of `target` at time `t + lag`, if inside the series and finite.
+#[inline]
 fn target_at(target: &[f64], t: usize, lag: i32) -> Option<f64> {
     let s = t as i64 + i64::from(lag);
     if s < 0 {
@@ -91,12 +113,11 @@ pub(crate) struct Table {
 #[derive(Default)]
 pub(crate) struct Scratch {
     nb: Vec<Neighbour>,
+    rows: Vec<Neighbour>,
     w: Vec<f64>,
-    est: Vec<f64>,
-    obs: Vec<f64>,
+    pairs: FinitePairs,
     acc: Vec<f64>,
-    multi_est: Vec<Vec<f64>>,
-    multi_obs: Vec<Vec<f64>>,
+    multi: Vec<FinitePairs>,
 }
 
 /// Driver values laid out time-major (`vals[t * count + j]`), so one neighbour's values for every
@@ -121,35 +142,61 @@ impl TimeMajor {
 }
 
 impl Table {
+    fn empty(k: usize) -> Self {
+        Table {
+            k,
+            pos: Vec::new(),
+            weight: Vec::new(),
+            full: Vec::new(),
+        }
+    }
+
     pub(crate) fn build(
         index: &dyn NeighbourIndex,
         library: &Library,
         k: usize,
         s: &mut Scratch,
     ) -> Self {
-        let n = index.manifold().len();
-        let mut t = Table {
-            k,
-            pos: vec![0; n * k],
-            weight: vec![0.0; n * k],
-            full: vec![false; n],
-        };
-        for q in 0..n {
-            index.nearest_all(q, library, k, &mut s.nb);
-            if s.nb.len() == k {
-                simplex_weights(&s.nb, &mut s.w);
-                t.full[q] = true;
-                for (j, (nb, &w)) in s.nb.iter().zip(&s.w).enumerate() {
-                    t.pos[q * k + j] = nb.pos;
-                    t.weight[q * k + j] = w;
-                }
-            }
-        }
+        let mut t = Table::empty(k);
+        t.rebuild(index, library, k, s);
         t
     }
 
+    /// Fill this table for `library`, reusing its buffers; equal to [`Table::build`].
+    pub(crate) fn rebuild(
+        &mut self,
+        index: &dyn NeighbourIndex,
+        library: &Library,
+        k: usize,
+        s: &mut Scratch,
+    ) {
+        let n = index.manifold().len();
+        self.k = k;
+        index.nearest_every(library, k, &mut s.rows, &mut self.full);
+        // Entries of positions that are not full are never read, so stale values may stay.
+        self.pos.resize(n * k, 0);
+        self.weight.resize(n * k, 0.0);
+        if k == 0 {
+            return;
+        }
+        // exp(-d_i / d_1) is exactly exp(-1) whenever d_i == d_1 (always so for the first
+        // neighbour): one call here instead of one per query, with identical bits.
+        let exp_neg1 = std::hint::black_box(-1.0f64).exp();
+        for q in 0..n {
+            if !self.full[q] {
+                continue;
+            }
+            let row = &s.rows[q * k..(q + 1) * k];
+            let w = &mut self.weight[q * k..(q + 1) * k];
+            weights_into(row, exp_neg1, w);
+            for (slot, nb) in self.pos[q * k..(q + 1) * k].iter_mut().zip(row) {
+                *slot = nb.pos;
+            }
+        }
+    }
+
     /// Estimates of `target(t + lag)` per query position (NaN where unpredictable), written to
-    /// `s.est`/`s.obs` as aligned pairs; `per_query`, when given, receives the estimate by position.
+    /// `s.pairs` as aligned (estimate, observation) pairs; `per_query`, when given, receives the estimate by position.
     pub(crate) fn estimate(
         &self,
         index: &dyn NeighbourIndex,
@@ -161,8 +208,7 @@ impl Table {
     ) {
         let m = index.manifold();
         let k = self.k;
-        s.est.clear();
-        s.obs.clear();
+        s.pairs.clear();
         for q in 0..m.len() {
             if !self.full[q] {
                 continue;
@@ -192,8 +238,7 @@ impl Table {
             if let Some(pq) = per_query.as_deref_mut() {
                 pq[q] = est;
             }
-            s.est.push(est);
-            s.obs.push(obs);
+            s.pairs.push(est, obs);
         }
     }
 
@@ -209,12 +254,8 @@ impl Table {
     ) -> Vec<f64> {
         let m = index.manifold();
         let (k, dn) = (self.k, tm.count);
-        s.multi_est.resize_with(dn, Vec::new);
-        s.multi_obs.resize_with(dn, Vec::new);
-        s.multi_est
-            .iter_mut()
-            .chain(s.multi_obs.iter_mut())
-            .for_each(Vec::clear);
+        s.multi.resize_with(dn, FinitePairs::default);
+        s.multi.iter_mut().for_each(FinitePairs::clear);
         s.acc.clear();
         s.acc.resize(dn, 0.0);
         for q in 0..m.len() {
@@ -244,13 +285,10 @@ impl Table {
                         None => continue,
                     }
                 }
-                s.multi_est[d].push(est);
-                s.multi_obs[d].push(obs);
+                s.multi[d].push(est, obs);
             }
         }
-        (0..dn)
-            .map(|d| pearson(&s.multi_est[d], &s.multi_obs[d]))
-            .collect()
+        (0..dn).map(|d| s.multi[d].r()).collect()
     }
 
     pub(crate) fn skill(
@@ -262,7 +300,7 @@ impl Table {
         s: &mut Scratch,
     ) -> f64 {
         self.estimate(index, library, target, lag, s, None);
-        pearson(&s.est, &s.obs)
+        s.pairs.r()
     }
 }
 
@@ -331,8 +369,8 @@ pub(crate) fn estimate_with(
     }
     CrossMapEstimate {
         estimates,
-        skill: pearson(&s.est, &s.obs),
-        predicted: s.est.len(),
+        skill: s.pairs.r(),
+        predicted: s.pairs.len(),
     }
 }
 
@@ -414,13 +452,16 @@ pub fn cross_map_response(
         .collect();
     let unit_skills: Vec<Vec<f64>> = units
         .par_iter()
-        .map_init(Scratch::default, |s, &(li, r)| {
-            let l = sizes[li];
-            let lib = draw_library(raw.seed, response, l, r, n);
-            let index = index_for(l);
-            let table = Table::build(index, &lib, k, s);
-            table.skills_fused(index, &lib, &columns, &time_major, s)
-        })
+        .map_init(
+            || (Scratch::default(), Table::empty(k)),
+            |(s, table), &(li, r)| {
+                let l = sizes[li];
+                let lib = draw_library(raw.seed, response, l, r, n);
+                let index = index_for(l);
+                table.rebuild(index, &lib, k, s);
+                table.skills_fused(index, &lib, &columns, &time_major, s)
+            },
+        )
         .collect();
 
     // The largest size: tables kept for lags and surrogates.

@@ -37,6 +37,64 @@ pub fn pearson(a: &[f64], b: &[f64]) -> f64 {
     (sxy / (sxx.sqrt() * syy.sqrt())).clamp(-1.0, 1.0)
 }
 
+/// Aligned (estimate, observation) pairs with running sums, so that [`FinitePairs::r`] skips
+/// [`pearson`]'s first pass: while every pair is finite the sums are the same additions in the
+/// same order, so the result is bit-identical; otherwise it falls back to [`pearson`].
+#[derive(Debug, Default, Clone)]
+pub(crate) struct FinitePairs {
+    pub(crate) a: Vec<f64>,
+    pub(crate) b: Vec<f64>,
+    sa: f64,
+    sb: f64,
+    non_finite: bool,
+}
+
+impl FinitePairs {
+    pub(crate) fn clear(&mut self) {
+        self.a.clear();
+        self.b.clear();
+        self.sa = 0.0;
+        self.sb = 0.0;
+        self.non_finite = false;
+    }
+
+    #[inline]
+    pub(crate) fn push(&mut self, x: f64, y: f64) {
+        self.a.push(x);
+        self.b.push(y);
+        self.sa += x;
+        self.sb += y;
+        self.non_finite |= !(x.is_finite() && y.is_finite());
+    }
+
+    pub(crate) fn len(&self) -> usize {
+        self.a.len()
+    }
+
+    /// Pearson r of the pairs; equal to `pearson(&self.a, &self.b)`.
+    pub(crate) fn r(&self) -> f64 {
+        if self.non_finite {
+            return pearson(&self.a, &self.b);
+        }
+        let n = self.a.len();
+        if n < 2 {
+            return f64::NAN;
+        }
+        let (ma, mb) = (self.sa / n as f64, self.sb / n as f64);
+        let (mut sxx, mut syy, mut sxy) = (0.0, 0.0, 0.0);
+        for (&x, &y) in self.a.iter().zip(&self.b) {
+            let (dx, dy) = (x - ma, y - mb);
+            sxx += dx * dx;
+            syy += dy * dy;
+            sxy += dx * dy;
+        }
+        if sxx <= 0.0 || syy <= 0.0 {
+            return f64::NAN;
+        }
+        (sxy / (sxx.sqrt() * syy.sqrt())).clamp(-1.0, 1.0)
+    }
+}
+
 /// Mean of the finite values (NaN when there are none).
 pub(crate) fn finite_mean(v: &[f64]) -> f64 {
     let (s, n) = v
@@ -71,6 +129,23 @@ mod tests {
         ];
         for (x, y) in [(&x123, &y1), (&x123, &y2), (&x123, &y3), (&x4, &y4)] {
             assert_abs_diff_eq!(pearson(x, y), 0.816, epsilon = 6e-4);
+        }
+    }
+
+    #[test]
+    fn running_sums_give_pearson_bit_for_bit() {
+        let mut rng = crate::seeds::keyed_rng(&[5]);
+        for n in [0usize, 1, 2, 3, 17, 400] {
+            let mut p = FinitePairs::default();
+            for _ in 0..n {
+                let x = crate::seeds::unit(&mut rng) * 1e3 + 7.0;
+                p.push(x, 0.3 * x + crate::seeds::unit(&mut rng));
+            }
+            let (r, want) = (p.r(), pearson(&p.a, &p.b));
+            assert!(r.to_bits() == want.to_bits() || (r.is_nan() && want.is_nan()));
+            p.push(f64::INFINITY, 1.0);
+            let (r, want) = (p.r(), pearson(&p.a, &p.b));
+            assert!(r.to_bits() == want.to_bits() || (r.is_nan() && want.is_nan()));
         }
     }
 
