@@ -13,7 +13,9 @@
 # (12 library sizes x 100 replicates, 39 surrogates, lag profile, E chosen up to 10), on the
 # shared 2-core build machine (load average about 4.5 from other builds): 591.8 s wall,
 # 16.7 ordered pairs per second, 562 MiB peak resident memory. 30 x 2000 (870 pairs):
-# 63.6 s, 13.7 pairs per second, 68 MiB.
+# 63.6 s, 13.7 pairs per second, 68 MiB. After the whole-table engine and with seasonal
+# surrogates added (39 of each kind), 100 x 2000 on the nearly idle machine: 142.9 s wall,
+# 69.3 ordered pairs per second, 619 MiB peak resident memory.
 set -euo pipefail
 vars=${1:-100}
 points=${2:-2000}
