@@ -187,7 +187,10 @@ mod tests {
         let x: Vec<f64> = (0..120).map(|t| ((t * t) % 17) as f64).collect();
         let c = mean_cycle(&x, 12.0);
         for (t, ct) in c.iter().enumerate() {
-            let same: Vec<f64> = (0..120).filter(|u| u % 12 == t % 12).map(|u| x[u]).collect();
+            let same: Vec<f64> = (0..120)
+                .filter(|u| u % 12 == t % 12)
+                .map(|u| x[u])
+                .collect();
             let m = same.iter().sum::<f64>() / same.len() as f64;
             assert!((ct - m).abs() < 1e-12);
         }
