@@ -445,6 +445,16 @@ pub fn draw(spec: &Spec, index: usize, attempt: u32) -> DrawnParams {
         Some(r) => d.uniform(r.lo, r.hi),
         None => 1.0,
     };
+    // Drawn in this order whatever the spec says, so a spec without clean systems draws as
+    // before; the clean coin is tossed only when clean systems are asked for.
+    let thinning = d.int(s.thinning.lo, s.thinning.hi);
+    let length = d.int(s.length.lo, s.length.hi);
+    let transient = d.int(s.transient.lo, s.transient.hi);
+    let observation_noise = d.uniform(spec.noise.observation.lo, spec.noise.observation.hi);
+    let process_noise = d.uniform(spec.noise.process.lo, spec.noise.process.hi);
+    let missing_fraction = d.uniform(s.missing.lo, s.missing.hi);
+    let noise_seed = d.next_seed();
+    let clean = spec.noise.clean_share > 0.0 && d.chance(spec.noise.clean_share);
     DrawnParams {
         id: format!("{}-{index:04}", family.as_str()),
         index,
@@ -455,13 +465,13 @@ pub fn draw(spec: &Spec, index: usize, attempt: u32) -> DrawnParams {
         couplings,
         drivers,
         interval,
-        thinning: d.int(s.thinning.lo, s.thinning.hi),
-        length: d.int(s.length.lo, s.length.hi),
-        transient: d.int(s.transient.lo, s.transient.hi),
-        observation_noise: d.uniform(spec.noise.observation.lo, spec.noise.observation.hi),
-        process_noise: d.uniform(spec.noise.process.lo, spec.noise.process.hi),
-        missing_fraction: d.uniform(s.missing.lo, s.missing.hi),
-        noise_seed: d.next_seed(),
+        thinning,
+        length,
+        transient,
+        observation_noise: if clean { 0.0 } else { observation_noise },
+        process_noise: if clean { 0.0 } else { process_noise },
+        missing_fraction: if clean { 0.0 } else { missing_fraction },
+        noise_seed,
     }
 }
 

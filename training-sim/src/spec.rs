@@ -185,6 +185,9 @@ spec_table! {
         /// Process noise: size of the random kick given to every state variable at every
         /// sampling step (log scale for populations, state scale otherwise).
         process: Range = Range::new(0.0, 0.02),
+        /// Share of systems recorded clean: no observation or process noise and no missing
+        /// cells, as published model systems usually are.
+        clean_share: f64 = 0.0,
     }
 }
 
@@ -560,6 +563,14 @@ impl Spec {
         }
         c.int("sampling.transient", s.transient);
         c.within("sampling.missing", s.missing, 0.0, 0.5, "[0, 0.5]");
+        let clean = self.noise.clean_share;
+        if !(0.0..=1.0).contains(&clean) {
+            c.fail(SpecError::OutOfRange {
+                key: "noise.clean_share".into(),
+                value: clean,
+                allowed: "[0, 1]",
+            });
+        }
         c.int("network.units", self.network.units);
         if self.network.units.lo < 3 || self.network.units.hi > MAX_NETWORK_UNITS {
             c.fail(SpecError::OutOfRange {
