@@ -502,6 +502,15 @@ fn panel(out: &mut String, anchor: usize, p: &PairView, open: bool) -> Result<()
                 SURROGATE_BAND.1 * 100.0
             );
         }
+        if let Some(s) = &p.seasonal_surrogate_skills {
+            put!(
+                out,
+                " <span class=\"sw sea\"></span> {} seasonal surrogates (the driver's own \
+                 cycle kept, its anomalies scrambled), same range: skill that does not clear \
+                 them is explained by a shared rhythm.",
+                s.len()
+            );
+        }
         out.push_str("</figcaption></figure>\n");
     }
 

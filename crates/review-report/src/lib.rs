@@ -24,6 +24,7 @@
 //!     reverse: None,
 //!     lag_profile: None,
 //!     surrogate_skills: Some(vec![0.01, 0.05, -0.02]),
+//!     seasonal_surrogate_skills: Some(vec![0.3, 0.35, 0.28]),
 //!     key_features: vec![("skill gain".into(), Some(0.4))],
 //! };
 //! let data = ReportData {

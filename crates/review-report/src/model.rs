@@ -101,8 +101,10 @@ pub struct PairView {
     /// (lags, skill): skill of recovering the driver at time t + lag from the
     /// response's embedding at time t, so a driver's lasting footprint shows at lag <= 0.
     pub lag_profile: Option<(Vec<i32>, Vec<f64>)>,
-    /// Skills of surrogate drivers at the largest library size.
+    /// Skills of phase-randomised surrogate drivers at the largest library size.
     pub surrogate_skills: Option<Vec<f64>>,
+    /// Skills of seasonal surrogate drivers (the driver's cycle kept) at the largest library size.
+    pub seasonal_surrogate_skills: Option<Vec<f64>>,
     /// Feature values worth showing, as (name, value); `None` when undefined.
     pub key_features: Vec<(String, Option<f64>)>,
 }

@@ -58,6 +58,7 @@ mod tests {
             reverse: None,
             lag_profile: None,
             surrogate_skills: None,
+            seasonal_surrogate_skills: None,
             key_features: vec![],
         }
     }

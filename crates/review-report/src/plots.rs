@@ -19,6 +19,8 @@ pub(crate) const FORWARD: RGBColor = RGBColor(0x1d, 0x4e, 0x89);
 pub(crate) const REVERSE: RGBColor = RGBColor(0xa1, 0x3d, 0x63);
 /// Surrogate drivers: a warm grey.
 pub(crate) const SURROGATE: RGBColor = RGBColor(0x7a, 0x70, 0x66);
+/// Seasonal surrogate drivers: a muted teal.
+pub(crate) const SEASONAL: RGBColor = RGBColor(0x2f, 0x7a, 0x6d);
 /// Tick label and axis title sizes in CSS pixels; plotters' SVG backend divides the
 /// requested size by 1.24, so whole pixel sizes are requested scaled up to keep the output short.
 const LABEL_PX: f64 = 12.0;
@@ -109,13 +111,15 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
     let xs: Vec<f64> = pair.library_sizes.iter().map(|&l| l as f64).collect();
     let fwd = spreads(&pair.forward, BAND);
     let rev = pair.reverse.as_ref().map(|r| spreads(r, BAND));
-    let sur = pair.surrogate_skills.as_ref().and_then(|s| {
+    let band = |s: &Vec<f64>| {
         Some((
             quantile(s, SURROGATE_BAND.0)?,
             quantile(s, 0.5)?,
             quantile(s, SURROGATE_BAND.1)?,
         ))
-    });
+    };
+    let sur = pair.surrogate_skills.as_ref().and_then(band);
+    let seasonal = pair.seasonal_surrogate_skills.as_ref().and_then(band);
 
     let x_min = xs.iter().copied().fold(f64::INFINITY, f64::min);
     let x_max = xs.iter().copied().fold(f64::NEG_INFINITY, f64::max);
@@ -123,14 +127,14 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
     let (x_lo, x_hi) = if x_max / x_min < 1.5 {
         (x_min / 2.0, x_max * 2.0)
     } else {
-        (x_min / 1.15, x_max * 1.25)
+        (x_min / 1.15, x_max * 1.4)
     };
     let all = fwd
         .iter()
         .chain(rev.iter().flatten())
         .flatten()
         .flat_map(|s| [s.lo, s.hi])
-        .chain(sur.iter().flat_map(|s| [s.0, s.2]));
+        .chain(sur.iter().chain(&seasonal).flat_map(|s| [s.0, s.2]));
     let (y_lo, y_hi) = y_bounds(all);
 
     let mut svg = String::new();
@@ -173,20 +177,29 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
             )))
             .map_err(plot_err(FIG))?;
 
-        if let Some((s_lo, s_mid, s_hi)) = sur {
-            let (a, b) = (x_max / 1.06, x_max * 1.06);
+        // Seasonal surrogates, when present, stand just right of the phase-randomised ones.
+        let bars = [
+            (seasonal, SEASONAL, x_max * 1.1, x_max * 1.25),
+            (sur, SURROGATE, x_max / 1.06, x_max * 1.06),
+        ];
+        for (kind, colour, a, b) in bars {
+            let Some((s_lo, s_mid, s_hi)) = kind else {
+                continue;
+            };
             chart
                 .draw_series([
-                    Rectangle::new([(a, s_lo), (b, s_hi)], SURROGATE.mix(0.28).filled()),
-                    Rectangle::new([(a, s_lo), (b, s_hi)], SURROGATE.stroke_width(1)),
+                    Rectangle::new([(a, s_lo), (b, s_hi)], colour.mix(0.28).filled()),
+                    Rectangle::new([(a, s_lo), (b, s_hi)], colour.stroke_width(1)),
                 ])
                 .map_err(plot_err(FIG))?;
             chart
                 .draw_series(std::iter::once(PathElement::new(
                     vec![(a, s_mid), (b, s_mid)],
-                    SURROGATE.stroke_width(2),
+                    colour.stroke_width(2),
                 )))
                 .map_err(plot_err(FIG))?;
+        }
+        if let Some((s_lo, _, s_hi)) = sur {
             // A word beside the bar, because a lone grey box is easy to misread.
             let label = ("sans-serif", LABEL_PX * 1.24)
                 .into_font()
@@ -354,6 +367,7 @@ mod tests {
             ]),
             lag_profile: None,
             surrogate_skills: Some(vec![0.0, 0.05, 0.1, -0.05]),
+            seasonal_surrogate_skills: Some(vec![0.2, 0.25, 0.3]),
             key_features: vec![],
         }
     }

@@ -79,6 +79,7 @@ pub fn report_view(
                 .as_ref()
                 .map(|l| (l.lags.clone(), l.skills.clone())),
             surrogate_skills: rec.evidence.surrogate_skills.clone(),
+            seasonal_surrogate_skills: rec.evidence.seasonal.as_ref().map(|s| s.skills.clone()),
             key_features: KEY_FEATURES
                 .iter()
                 .zip(&index)

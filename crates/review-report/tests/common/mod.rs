@@ -106,7 +106,8 @@ pub fn pair(
         forward,
         reverse,
         lag_profile: Some((lags, lag_skill)),
-        surrogate_skills: Some(surrogate),
+        surrogate_skills: Some(surrogate.clone()),
+        seasonal_surrogate_skills: Some(surrogate.iter().map(|v| v + 0.1).collect()),
         key_features: vec![
             ("skill at largest library".to_owned(), Some(top_f)),
             (
