@@ -18,18 +18,31 @@ pub fn pearson(a: &[f64], b: &[f64]) -> f64 {
             sb += y;
         }
     }
+    let finite = a
+        .iter()
+        .zip(b)
+        .filter(|(x, y)| x.is_finite() && y.is_finite());
+    second_pass(n, sa, sb, finite)
+}
+
+/// Pearson's second pass: `n` pairs with sums `sa` and `sb`, then the centred products over
+/// `pairs` (the same `n` pairs, in order). NaN when `n < 2` or either side has zero variance.
+fn second_pass<'a>(
+    n: usize,
+    sa: f64,
+    sb: f64,
+    pairs: impl Iterator<Item = (&'a f64, &'a f64)>,
+) -> f64 {
     if n < 2 {
         return f64::NAN;
     }
     let (ma, mb) = (sa / n as f64, sb / n as f64);
     let (mut sxx, mut syy, mut sxy) = (0.0, 0.0, 0.0);
-    for (&x, &y) in a.iter().zip(b) {
-        if x.is_finite() && y.is_finite() {
-            let (dx, dy) = (x - ma, y - mb);
-            sxx += dx * dx;
-            syy += dy * dy;
-            sxy += dx * dy;
-        }
+    for (&x, &y) in pairs {
+        let (dx, dy) = (x - ma, y - mb);
+        sxx += dx * dx;
+        syy += dy * dy;
+        sxy += dx * dy;
     }
     if sxx <= 0.0 || syy <= 0.0 {
         return f64::NAN;
@@ -76,22 +89,7 @@ impl FinitePairs {
         if self.non_finite {
             return pearson(&self.a, &self.b);
         }
-        let n = self.a.len();
-        if n < 2 {
-            return f64::NAN;
-        }
-        let (ma, mb) = (self.sa / n as f64, self.sb / n as f64);
-        let (mut sxx, mut syy, mut sxy) = (0.0, 0.0, 0.0);
-        for (&x, &y) in self.a.iter().zip(&self.b) {
-            let (dx, dy) = (x - ma, y - mb);
-            sxx += dx * dx;
-            syy += dy * dy;
-            sxy += dx * dy;
-        }
-        if sxx <= 0.0 || syy <= 0.0 {
-            return f64::NAN;
-        }
-        (sxy / (sxx.sqrt() * syy.sqrt())).clamp(-1.0, 1.0)
+        second_pass(self.a.len(), self.sa, self.sb, self.a.iter().zip(&self.b))
     }
 }
 
