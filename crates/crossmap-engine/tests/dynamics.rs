@@ -2,8 +2,8 @@
 //! (Sugihara et al. 2012) and the Lorenz (1963) system (Sugihara & May 1990).
 
 use crossmap_engine::{
-    CrossMapParams, EmbeddingSettings, LibrarySizes, PairEnsemble, choose_embedding, cross_map_all,
-    simplex_forecast,
+    CrossMapParams, Embedding, EmbeddingSettings, LibrarySizes, PairEnsemble, choose_embedding,
+    cross_map_all, simplex_forecast,
 };
 
 /// Coupled logistic maps of Sugihara et al. (2012), r_x = 3.8, r_y = 3.5, with coupling only from
@@ -21,6 +21,19 @@ fn mean(v: &[f64]) -> f64 {
     v.iter().sum::<f64>() / v.len() as f64
 }
 
+/// Every series embedded with dimension `e` and delay 1 (simplex skill still computed).
+fn fixed_embeddings(series: &[Vec<f64>], e: usize) -> Vec<Embedding> {
+    let settings = EmbeddingSettings {
+        e: Some(e),
+        tau: Some(1),
+        ..Default::default()
+    };
+    series
+        .iter()
+        .map(|s| choose_embedding(s, &settings).unwrap())
+        .collect()
+}
+
 fn pair(pairs: &[PairEnsemble], driver: usize, response: usize) -> &PairEnsemble {
     pairs
         .iter()
@@ -33,15 +46,7 @@ fn one_way_coupled_logistic_converges_only_in_the_true_direction() {
     let n = 500;
     let (x, y) = coupled_logistic(n);
     let series = vec![x, y];
-    let settings = EmbeddingSettings {
-        e: Some(2),
-        tau: Some(1),
-        ..Default::default()
-    };
-    let emb: Vec<_> = series
-        .iter()
-        .map(|s| choose_embedding(s, &settings).unwrap())
-        .collect();
+    let emb = fixed_embeddings(&series, 2);
     let params = CrossMapParams::default()
         .with_library_sizes(LibrarySizes::Explicit(vec![5, 10, 20, 50, 100, 200, 400]))
         .with_replicates(30)
@@ -91,15 +96,7 @@ fn progress_reports_finished_pairs() {
     let (x, y) = coupled_logistic(120);
     let z: Vec<f64> = x.iter().zip(&y).map(|(a, b)| a - b).collect();
     let series = vec![x, y, z];
-    let settings = EmbeddingSettings {
-        e: Some(2),
-        tau: Some(1),
-        ..Default::default()
-    };
-    let emb: Vec<_> = series
-        .iter()
-        .map(|s| choose_embedding(s, &settings).unwrap())
-        .collect();
+    let emb = fixed_embeddings(&series, 2);
     let params = CrossMapParams::default()
         .with_replicates(3)
         .validate(120, &emb)
@@ -202,15 +199,7 @@ fn seasonal_surrogates_absorb_a_shared_rhythm_but_not_a_real_coupling() {
             y.push(y[t] * (3.0 * (1.0 + 0.2 * forcing[t]) * (1.0 - y[t])).exp());
         }
         let series = vec![x[100..].to_vec(), y[100..].to_vec()];
-        let settings = EmbeddingSettings {
-            e: Some(3),
-            tau: Some(1),
-            ..Default::default()
-        };
-        let emb: Vec<_> = series
-            .iter()
-            .map(|s| choose_embedding(s, &settings).unwrap())
-            .collect();
+        let emb = fixed_embeddings(&series, 3);
         let params = CrossMapParams::default()
             .with_library_sizes(LibrarySizes::Auto { count: 4 })
             .with_replicates(5)
