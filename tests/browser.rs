@@ -138,11 +138,7 @@ impl Browser {
         self.stdin.flush().unwrap();
         let deadline = Instant::now() + TIMEOUT;
         loop {
-            let left = deadline.saturating_duration_since(Instant::now());
-            let v = self
-                .rx
-                .recv_timeout(left)
-                .unwrap_or_else(|_| panic!("no answer to {method} within {TIMEOUT:?}"));
+            let v = self.recv_before(deadline, &format!("answer to {method}"));
             if v.get("id").and_then(Value::as_u64) == Some(id) {
                 if let Some(err) = v.get("error") {
                     panic!("{method} failed: {err}");
@@ -153,6 +149,14 @@ impl Browser {
         }
     }
 
+    /// The next message from the browser, failing the test at `deadline` with "no `what`".
+    fn recv_before(&self, deadline: Instant, what: &str) -> Value {
+        let left = deadline.saturating_duration_since(Instant::now());
+        self.rx
+            .recv_timeout(left)
+            .unwrap_or_else(|_| panic!("no {what} within {TIMEOUT:?}"))
+    }
+
     fn wait_event(&mut self, session: &str, method: &str) {
         let is_it = |v: &Value| v["method"] == method && v["sessionId"] == session;
         if self.events.iter().any(is_it) {
@@ -160,11 +164,7 @@ impl Browser {
         }
         let deadline = Instant::now() + TIMEOUT;
         loop {
-            let left = deadline.saturating_duration_since(Instant::now());
-            let v = self
-                .rx
-                .recv_timeout(left)
-                .unwrap_or_else(|_| panic!("no {method} event within {TIMEOUT:?}"));
+            let v = self.recv_before(deadline, &format!("{method} event"));
             let hit = is_it(&v);
             self.events.push(v);
             if hit {
