@@ -14,7 +14,8 @@ pub const PARSIMONY_TOLERANCE: f64 = 0.02;
 /// Smallest automatically chosen dimension. A one-coordinate manifold cannot separate states
 /// that differ only in a driver's influence, so a response whose own dynamics forecast as well
 /// at E = 1 (a one-dimensional map, say) would hide every driver; E = 2 gives the driver's
-/// footprint a coordinate (Sugihara et al. 2012 cross-map their coupled logistic maps at E = 2).
+/// footprint a coordinate (Sugihara et al. 2012 cross-map their coupled logistic maps at E = 2;
+/// from memory).
 /// The simplex skill at E = 1 is still computed and reported.
 pub const MIN_AUTO_E: usize = 2;
 

@@ -168,7 +168,8 @@ fn lorenz_simplex_picks_a_small_dimension_and_skill_decays_with_horizon() {
     assert!(s1 > s10 && s10 > s40, "skills {s1} {s10} {s40}");
 }
 
-/// The design of Deyle et al. (2016): an environmental driver X is a 12-step seasonal cycle
+/// The design of Deyle et al. (2016; recalled from memory): an environmental driver X is a
+/// 12-step seasonal cycle
 /// plus autocorrelated anomalies, and a chaotic Ricker population Y has its growth rate forced
 /// by the bare season, so X and Y share only the rhythm (no causal link), yet X cross-maps
 /// well from Y's states. The driver's cycle is found without being told (period 12), and the
