@@ -169,9 +169,8 @@ fn lorenz_simplex_picks_a_small_dimension_and_skill_decays_with_horizon() {
 }
 
 /// The design of Deyle et al. (2016; recalled from memory): an environmental driver X is a
-/// 12-step seasonal cycle
-/// plus autocorrelated anomalies, and a chaotic Ricker population Y has its growth rate forced
-/// by the bare season, so X and Y share only the rhythm (no causal link), yet X cross-maps
+/// 12-step seasonal cycle plus autocorrelated anomalies, and a chaotic Ricker population Y has
+/// its growth rate forced by the bare season, so X and Y share only the rhythm (no causal link), yet X cross-maps
 /// well from Y's states. The driver's cycle is found without being told (period 12), and the
 /// seasonal surrogates, which keep that cycle and scramble the anomalies, reach nearly the
 /// real skill: the rhythm alone explains it. When Y is forced by X itself, anomalies
