@@ -22,6 +22,7 @@
 //! ```
 #![deny(missing_docs)]
 
+pub mod canonical;
 pub mod drawn;
 pub mod dynamics;
 pub mod family;
@@ -35,6 +36,7 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 
 use rayon::prelude::*;
 
+pub use canonical::{CanonicalDraw, Form};
 pub use drawn::{DrawnParams, Structure};
 pub use family::Family;
 pub use graph::{Label, TruthRow};
@@ -92,21 +94,58 @@ pub struct System {
     /// Truth for every ordered pair of observed variables.
     pub truth: Vec<TruthRow>,
     /// Every drawn value; enough to regenerate the system.
-    pub drawn: DrawnParams,
+    pub drawn: Drawn,
+}
+
+/// The drawn values of a system: a family system or a canonical one.
+///
+/// Serialised untagged, so a family system's record keeps the shape it always had in the
+/// resolved spec JSON.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(untagged)]
+pub enum Drawn {
+    /// Units of one dynamics family wired by a structure.
+    Family(DrawnParams),
+    /// A canonical published form.
+    Canonical(CanonicalDraw),
+}
+
+impl Drawn {
+    /// The family draw, when the system is a family system.
+    pub fn family(&self) -> Option<&DrawnParams> {
+        match self {
+            Drawn::Family(d) => Some(d),
+            Drawn::Canonical(_) => None,
+        }
+    }
 }
 
 impl System {
     /// Runs drawn parameters again, giving the identical system.
-    pub fn regenerate(drawn: &DrawnParams) -> Result<System, SimError> {
-        build(drawn).ok_or_else(|| SimError::NotUsable {
-            id: drawn.id.clone(),
+    pub fn regenerate(drawn: &Drawn) -> Result<System, SimError> {
+        let built = match drawn {
+            Drawn::Family(d) => build(d),
+            Drawn::Canonical(c) => build_canonical(c),
+        };
+        built.ok_or_else(|| SimError::NotUsable {
+            id: match drawn {
+                Drawn::Family(d) => d.id.clone(),
+                Drawn::Canonical(c) => c.id.clone(),
+            },
         })
     }
 
     /// Model time between consecutive recorded samples (`interval × thinning`; maps count
     /// iterations). The CSV's `t` column is the sample index; multiply by this for model time.
     pub fn sample_interval(&self) -> f64 {
-        self.drawn.interval * self.drawn.thinning as f64
+        match &self.drawn {
+            Drawn::Family(d) => d.interval * d.thinning as f64,
+            Drawn::Canonical(c) => c
+                .params
+                .iter()
+                .find(|(k, _)| k == "interval")
+                .map_or(1.0, |(_, v)| *v),
+        }
     }
 
     /// The series as CSV: header `t,<variables>`, `t` the sample index, missing cells empty.
@@ -127,22 +166,51 @@ fn build(drawn: &DrawnParams) -> Option<System> {
         variables: cols.into_iter().map(|c| c.0).collect(),
         series: run::observe(drawn, clean),
         truth: graph::truth(drawn),
-        drawn: drawn.clone(),
+        drawn: Drawn::Family(drawn.clone()),
+    })
+}
+
+fn build_canonical(drawn: &CanonicalDraw) -> Option<System> {
+    let built = canonical::build(drawn).ok()?;
+    Some(System {
+        id: drawn.id.clone(),
+        family: format!("canon_{}", drawn.form.as_str()),
+        structure: drawn.variant.clone(),
+        variables: built.names,
+        series: built.series,
+        truth: built.truth,
+        drawn: Drawn::Canonical(drawn.clone()),
     })
 }
 
 /// Simulates system `index` of the spec alone (identical to its place in [`simulate`]).
 pub fn simulate_one(spec: &Spec, index: usize) -> Result<System, SimError> {
     let total = spec.total_count();
-    let family = drawn::family_of(spec, index).ok_or(SimError::NoSuchSystem { index, total })?;
-    for attempt in 0..MAX_ATTEMPTS {
-        if let Some(s) = build(&drawn::draw(spec, index, attempt)) {
-            return Ok(s);
-        }
+    if index >= total {
+        return Err(SimError::NoSuchSystem { index, total });
     }
+    let family = match drawn::family_of(spec, index) {
+        Some(family) => {
+            for attempt in 0..MAX_ATTEMPTS {
+                if let Some(s) = build(&drawn::draw(spec, index, attempt)) {
+                    return Ok(s);
+                }
+            }
+            family.as_str()
+        }
+        // Canonical systems are numbered after every family system.
+        None => {
+            for attempt in 0..MAX_ATTEMPTS {
+                if let Some(s) = build_canonical(&canonical::draw(spec, index, attempt)) {
+                    return Ok(s);
+                }
+            }
+            "canonical"
+        }
+    };
     Err(SimError::Unusable {
         index,
-        family: family.as_str(),
+        family,
         attempts: MAX_ATTEMPTS,
     })
 }
@@ -200,13 +268,22 @@ mod tests {
     #[test]
     fn hidden_variables_never_appear() {
         for s in simulate(&small()).unwrap() {
-            let observed: usize = s.drawn.units.iter().map(|u| u.observed.len()).sum();
+            let observed: usize = s
+                .drawn
+                .family()
+                .unwrap()
+                .units
+                .iter()
+                .map(|u| u.observed.len())
+                .sum();
             assert_eq!(s.variables.len(), observed);
             assert_eq!(s.series.len(), observed);
             let header = s.to_csv_string().lines().next().unwrap().to_string();
             assert_eq!(header.split(',').count(), observed + 1);
             let hidden = s
                 .drawn
+                .family()
+                .unwrap()
                 .units
                 .iter()
                 .filter(|u| u.observed.is_empty())
@@ -262,7 +339,7 @@ mod tests {
         let k = all.len() - 1;
         assert_eq!(simulate_one(&spec, k).unwrap(), all[k]);
         let json = serde_json::to_string(&all[k].drawn).unwrap();
-        let drawn: DrawnParams = serde_json::from_str(&json).unwrap();
+        let drawn: Drawn = serde_json::from_str(&json).unwrap();
         assert_eq!(System::regenerate(&drawn).unwrap(), all[k]);
     }
 
@@ -373,15 +450,16 @@ mod tests {
         let spec = Spec::from_toml_str(&text).unwrap();
         let mut checked = 0;
         for base in simulate(&spec).unwrap() {
-            let (g, offset) = graph::Graph::of(&base.drawn);
-            let cols = graph::observed_columns(&base.drawn, &offset);
-            let dim = base.drawn.family.var_names().len();
+            let base_drawn = base.drawn.family().unwrap();
+            let (g, offset) = graph::Graph::of(base_drawn);
+            let cols = graph::observed_columns(base_drawn, &offset);
+            let dim = base_drawn.family.var_names().len();
             for (u, &off) in offset.iter().enumerate() {
-                let mut d = base.drawn.clone();
+                let mut d = base_drawn.clone();
                 for v in d.units[u].initial.iter_mut() {
                     *v *= 1.0 + 1e-6;
                 }
-                let Ok(moved) = System::regenerate(&d) else {
+                let Ok(moved) = System::regenerate(&Drawn::Family(d.clone())) else {
                     continue;
                 };
                 for (c, col) in cols.iter().enumerate() {
@@ -419,17 +497,21 @@ mod tests {
         let all_clean =
             simulate(&Spec::from_toml_str(&format!("{base}clean_share = 1.0\n{tail}")).unwrap())
                 .unwrap();
-        for (n, c) in noisy.iter().zip(&all_clean) {
-            assert_eq!(c.drawn.observation_noise, 0.0);
-            assert_eq!(c.drawn.process_noise, 0.0);
-            assert_eq!(c.drawn.missing_fraction, 0.0);
-            assert!(c.series.iter().flatten().all(|v| v.is_finite()));
+        for (ns, cs) in noisy.iter().zip(&all_clean) {
+            assert!(cs.series.iter().flatten().all(|v| v.is_finite()));
+            let (n, c) = (ns.drawn.family().unwrap(), cs.drawn.family().unwrap());
+            assert_eq!(c.observation_noise, 0.0);
+            assert_eq!(c.process_noise, 0.0);
+            assert_eq!(c.missing_fraction, 0.0);
             // Wiring and parameters are drawn before the clean coin: the same systems, unless
             // the blow-up guard redrew one of them.
-            if n.drawn.attempt == c.drawn.attempt {
-                assert_eq!((&n.structure, &n.variables), (&c.structure, &c.variables));
+            if n.attempt == c.attempt {
+                assert_eq!(
+                    (&ns.structure, &ns.variables),
+                    (&cs.structure, &cs.variables)
+                );
             }
-            assert!(n.drawn.observation_noise > 0.0);
+            assert!(n.observation_noise > 0.0);
         }
     }
 }

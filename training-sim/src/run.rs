@@ -310,14 +310,30 @@ pub(crate) fn mean_sd(xs: &[f64]) -> (f64, f64) {
 }
 
 /// Adds observation noise (a fraction of each series' SD) and blanks missing cells (NaN).
-pub(crate) fn observe(d: &DrawnParams, mut series: Vec<Vec<f64>>) -> Vec<Vec<f64>> {
-    let mut obs = Draw::new(splitmix64(d.noise_seed ^ 0x02));
-    let mut gaps = Draw::new(splitmix64(d.noise_seed ^ 0x03));
+pub(crate) fn observe(d: &DrawnParams, series: Vec<Vec<f64>>) -> Vec<Vec<f64>> {
+    observe_series(
+        series,
+        d.observation_noise,
+        d.missing_fraction,
+        d.noise_seed,
+    )
+}
+
+/// Observation noise of SD `noise` x each clean series' SD, then missing cells with
+/// probability `missing`, from streams derived from `seed`.
+pub(crate) fn observe_series(
+    mut series: Vec<Vec<f64>>,
+    noise: f64,
+    missing: f64,
+    seed: u64,
+) -> Vec<Vec<f64>> {
+    let mut obs = Draw::new(splitmix64(seed ^ 0x02));
+    let mut gaps = Draw::new(splitmix64(seed ^ 0x03));
     for col in &mut series {
         let (_, sd) = mean_sd(col);
         for v in col.iter_mut() {
-            *v += d.observation_noise * sd * obs.normal();
-            if d.missing_fraction > 0.0 && gaps.chance(d.missing_fraction) {
+            *v += noise * sd * obs.normal();
+            if missing > 0.0 && gaps.chance(missing) {
                 *v = f64::NAN;
             }
         }

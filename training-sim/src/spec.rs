@@ -232,6 +232,32 @@ spec_table! {
 }
 
 spec_table! {
+    /// `[canonical]`: systems in the published forms of the cross-mapping literature, numbered
+    /// after every family system; the weights say how often each form is drawn.
+    CanonicalSpec {
+        /// Canonical systems to draw.
+        count: u64 = 0,
+        /// Share of canonical systems drawn without their coupling (or, for the shared-driver
+        /// forms, with unrelated drivers).
+        uncoupled_share: f64 = 0.25,
+        /// Two-species coupled logistic maps (Sugihara et al. 2012).
+        logistic_pair: f64 = 1.0,
+        /// Two Hénon maps, one driving the other (Schiff et al. 1996).
+        henon_pair: f64 = 1.0,
+        /// A Rössler flow driving a Lorenz flow.
+        rossler_lorenz: f64 = 1.0,
+        /// A three-species logistic chain, middle observed or hidden.
+        logistic_chain: f64 = 1.0,
+        /// Two populations under one hidden environment (Moran 1953).
+        moran_pair: f64 = 1.0,
+        /// Two seasonal epidemics sharing a season (Finkenstädt & Grenfell 2000).
+        seasonal_epidemics: f64 = 1.0,
+        /// An observed seasonal environment forcing a population, or beside an unforced one.
+        forced_population: f64 = 1.0,
+    }
+}
+
+spec_table! {
     /// `[families.logistic]`: coupled logistic maps (Sugihara et al. 2012 form).
     LogisticSpec {
         /// Systems of this family.
@@ -448,6 +474,9 @@ pub struct Spec {
     /// Families and their parameter ranges.
     #[serde(default)]
     pub families: FamiliesSpec,
+    /// Canonical published forms.
+    #[serde(default)]
+    pub canonical: CanonicalSpec,
 }
 
 struct Checker {
@@ -522,6 +551,11 @@ impl Spec {
 
     /// Total number of systems the spec asks for.
     pub fn total_count(&self) -> usize {
+        self.family_count() + self.canonical.count as usize
+    }
+
+    /// Number of family systems (they come first in the numbering).
+    pub fn family_count(&self) -> usize {
         crate::family::Family::ALL
             .iter()
             .map(|f| f.count(self) as usize)
@@ -633,8 +667,41 @@ impl Spec {
                 });
             }
         }
-        if weights.iter().all(|(_, v)| *v <= 0.0) {
+        if self.family_count() > 0 && weights.iter().all(|(_, v)| *v <= 0.0) {
             c.fail(SpecError::NoStructures);
+        }
+        let k = &self.canonical;
+        let forms = [
+            ("logistic_pair", k.logistic_pair),
+            ("henon_pair", k.henon_pair),
+            ("rossler_lorenz", k.rossler_lorenz),
+            ("logistic_chain", k.logistic_chain),
+            ("moran_pair", k.moran_pair),
+            ("seasonal_epidemics", k.seasonal_epidemics),
+            ("forced_population", k.forced_population),
+        ];
+        for (name, v) in forms {
+            if !v.is_finite() || v < 0.0 {
+                c.fail(SpecError::OutOfRange {
+                    key: format!("canonical.{name}"),
+                    value: v,
+                    allowed: "[0, inf)",
+                });
+            }
+        }
+        if k.count > 0 && forms.iter().all(|(_, v)| *v <= 0.0) {
+            c.fail(SpecError::OutOfRange {
+                key: "canonical".into(),
+                value: 0.0,
+                allowed: "at least one form weight > 0",
+            });
+        }
+        if !(0.0..=1.0).contains(&k.uncoupled_share) {
+            c.fail(SpecError::OutOfRange {
+                key: "canonical.uncoupled_share".into(),
+                value: k.uncoupled_share,
+                allowed: "[0, 1]",
+            });
         }
         let f = &self.families;
         let l = &f.logistic;
