@@ -508,13 +508,16 @@ pub fn cross_map_response(
                         keyed_rng(&[TAG_SURROGATE, raw.seed, d as u64, response as u64, j as u64]);
                     maker.phase_randomised(&series[d], &mut rng)
                 } else {
-                    let Some(season) = seasons[di] else {
-                        return f64::NAN;
-                    };
                     let j = (j - raw.surrogates) as u64;
                     let mut rng =
                         keyed_rng(&[TAG_SEASONAL, raw.seed, d as u64, response as u64, j]);
-                    maker.seasonal(&series[d], season.period, &mut rng)
+                    // Without a cycle to keep, a seasonal surrogate is a phase-randomised one.
+                    match seasons[di] {
+                        Some(season) if raw.seasonal && season.has_cycle() => {
+                            maker.seasonal(&series[d], season.period, &mut rng)
+                        }
+                        _ => maker.phase_randomised(&series[d], &mut rng),
+                    }
                 };
                 let per_table: Vec<f64> = tables
                     .iter()

@@ -39,6 +39,9 @@ pub struct CrossMapParams {
     /// Known period in time steps for the seasonal surrogates of every driver; `None` detects
     /// each driver's dominant cycle ([`crate::season::detect_season`]).
     pub period: Option<usize>,
+    /// Whether seasonal surrogates keep each driver's cycle; when false they are plain
+    /// phase-randomised surrogates (for records known to carry no outside rhythm).
+    pub seasonal: bool,
     /// Master seed.
     pub seed: u64,
 }
@@ -54,6 +57,7 @@ impl Default for CrossMapParams {
             max_lag: None,
             surrogates: 0,
             period: None,
+            seasonal: true,
             seed: 0,
         }
     }
@@ -108,6 +112,11 @@ impl CrossMapParams {
     pub fn with_surrogates(mut self, count: usize, period: Option<usize>) -> Self {
         self.surrogates = count;
         self.period = period;
+        self
+    }
+    /// Switch seasonal surrogates on (the default) or off.
+    pub fn with_seasonal_surrogates(mut self, on: bool) -> Self {
+        self.seasonal = on;
         self
     }
     /// Set the master seed.

@@ -10,7 +10,9 @@
 //! Rules:
 //! - candidates are the [`CANDIDATES`] largest periodogram peaks (after removing the mean) with
 //!   periods from [`MIN_PERIOD`] samples to a third of the series, so every candidate repeats at
-//!   least three times;
+//!   least three times; the floor of 4 samples keeps a map's own period-2 or period-3
+//!   oscillation (coupled logistic maps show one with strength up to 0.97) from being taken for
+//!   an outside rhythm, whose seasonal surrogates would then keep the very dynamics under test;
 //! - each candidate period `p` is refined on a grid of `p (1 + j / 200)`, `j = -8..=8` (within
 //!   ±4 %, which spans the periodogram's bin width for three or more cycles), scoring the
 //!   adjusted R² of the mean cycle by phase;
@@ -18,12 +20,19 @@
 //!   `B = round(p)` bins, at most [`MAX_BINS`] and at most a third of the finite samples; for a
 //!   whole-number period of at most [`MAX_BINS`] samples that is the mean at each `t mod p`;
 //! - strength is the adjusted R² (`1 - (SS_res / (n - B)) / (SS_tot / (n - 1))`, floored at 0),
-//!   so more bins do not score better by chance.
+//!   so more bins do not score better by chance;
+//! - a detected cycle counts as a season only with strength at least [`MIN_SEASON_STRENGTH`];
+//!   a weaker one is reported with strength 0, and its seasonal surrogates are plain
+//!   phase-randomised ones (there is no cycle to keep). A period the user gives always counts.
 
 use realfft::RealFftPlanner;
 
 /// Shortest period considered, in samples.
-pub const MIN_PERIOD: f64 = 2.0;
+pub const MIN_PERIOD: f64 = 4.0;
+/// Weakest detected cycle (adjusted R² of the mean cycle) taken as a season. Below it the mean
+/// cycle explains less than a tenth of the variance, and white noise of 200 points reaches
+/// about 0.05 by chance over the candidate periods.
+pub const MIN_SEASON_STRENGTH: f64 = 0.1;
 /// Largest number of phase bins of the mean cycle.
 pub const MAX_BINS: usize = 24;
 /// Periodogram peaks refined.
@@ -155,12 +164,26 @@ pub fn detect_season(x: &[f64]) -> Option<Season> {
     }))
 }
 
+impl Season {
+    /// Whether there is a cycle for seasonal surrogates to keep (strength above zero).
+    pub fn has_cycle(&self) -> bool {
+        self.strength > 0.0
+    }
+}
+
 /// The cycle used for seasonal surrogates: at the given period when one is known, else the
-/// detected one.
+/// detected one, with strength 0 when it is weaker than [`MIN_SEASON_STRENGTH`].
 pub fn season_for(x: &[f64], known_period: Option<usize>) -> Option<Season> {
     match known_period {
         Some(p) => Some(season_at(x, p as f64)),
-        None => detect_season(x),
+        None => detect_season(x).map(|s| Season {
+            strength: if s.strength >= MIN_SEASON_STRENGTH {
+                s.strength
+            } else {
+                0.0
+            },
+            ..s
+        }),
     }
 }
 
@@ -180,6 +203,21 @@ mod tests {
         let s = detect_season(&x).unwrap();
         assert!((s.period - 12.5).abs() < 0.15, "{s:?}");
         assert!(s.strength > 0.8, "{s:?}");
+    }
+
+    #[test]
+    fn a_logistic_map_period_two_oscillation_is_no_season() {
+        // The logistic map at r = 3.5 settles on a period-4 cycle and at r = 3.2 on period 2
+        // (May 1976); at r = 3.8 it is chaotic with a strong alternation. None of these is an
+        // outside rhythm, and the chaotic one must not count as a season.
+        let mut x = vec![0.4];
+        for _ in 0..600 {
+            let v = *x.last().unwrap();
+            x.push(3.8 * v * (1.0 - v));
+        }
+        let s = season_for(&x[100..], None).unwrap();
+        assert!(s.period >= MIN_PERIOD, "{s:?}");
+        assert!(!s.has_cycle(), "{s:?}");
     }
 
     #[test]
@@ -209,7 +247,8 @@ mod tests {
             .collect();
         x[10] = f64::NAN;
         let s = detect_season(&x).unwrap();
-        assert!(s.strength < 0.1, "{s:?}");
+        assert!(s.strength < MIN_SEASON_STRENGTH, "{s:?}");
+        assert_eq!(season_for(&x, None).unwrap().strength, 0.0);
         assert!(detect_season(&x[..5]).is_none());
         assert_eq!(season_at(&vec![1.0; 50], 5.0).strength, 0.0);
     }
