@@ -194,6 +194,11 @@ pub struct PairContext {
     /// response) at the largest library size; 0 when no other variable is observed (no
     /// observed candidate for a common driver).
     pub common_driver_skill: f64,
+    /// Share of the response's observed drivers (this one included) whose skill at the largest
+    /// library size is at or below this pair's; 1 when this is the only driver.
+    pub response_skill_rank: f64,
+    /// Mean skill at the largest library size over every observed driver of the response.
+    pub response_mean_skill: f64,
 }
 
 /// A series' dominant cycle.

@@ -63,7 +63,7 @@ pub struct FeatureDef {
 }
 
 /// Schema version; bump on any change of names, order or meaning.
-pub const SCHEMA_VERSION: u32 = 2;
+pub const SCHEMA_VERSION: u32 = 3;
 
 const fn def(
     name: &'static str,
@@ -84,7 +84,7 @@ use FeatureGroup::{Context, Contrast, Curve, Lag, Seasonal, Surrogate};
 /// Column order of `features.csv`. "Skill" is the forward cross-map skill (driver estimated
 /// from the response's manifold); L is the library size; "mean curve" is the replicate mean
 /// at each L.
-static SCHEMA: [FeatureDef; 74] = [
+static SCHEMA: [FeatureDef; 84] = [
     // Plateau.
     def(
         "skill_final_mean",
@@ -96,6 +96,12 @@ static SCHEMA: [FeatureDef; 74] = [
         "skill_final_median",
         "median skill across replicates at the largest library size",
         "[-1, 1]",
+        Curve,
+    ),
+    def(
+        "fisher_z_final",
+        "Fisher z (atanh) of skill_final_mean, clamped: separates skills near 1 that the raw scale crowds together",
+        "[-3.8, 3.8]",
         Curve,
     ),
     def(
@@ -338,6 +344,18 @@ static SCHEMA: [FeatureDef; 74] = [
         "[-2, 2]",
         Contrast,
     ),
+    def(
+        "diff_fisher_z_final",
+        "fisher_z_final minus the reverse direction's: convergence asymmetry on the Fisher z scale",
+        "[-7.6, 7.6]",
+        Contrast,
+    ),
+    def(
+        "diff_fit_log10_rate",
+        "fit_log10_rate minus rev_fit_log10_rate: which direction converges faster",
+        "real, mostly [-6, 6]",
+        Contrast,
+    ),
     // Lagged cross mapping (Ye et al. 2015).
     def(
         "lag_best",
@@ -374,6 +392,24 @@ static SCHEMA: [FeatureDef; 74] = [
         "diff_lag_best_scaled",
         "lag_best_scaled minus rev_lag_best_scaled: negative when the driver leads in both views (Ye et al. 2015)",
         "[-2, 2]",
+        Lag,
+    ),
+    def(
+        "lag_asymmetry",
+        "best skill at negative lags minus best skill at positive lags: positive when the response reflects the driver's past (Ye et al. 2015)",
+        "[-2, 2]",
+        Lag,
+    ),
+    def(
+        "rev_lag_asymmetry",
+        "reverse direction: best skill at negative lags minus best at positive lags",
+        "[-2, 2]",
+        Lag,
+    ),
+    def(
+        "diff_lag_asymmetry",
+        "lag_asymmetry minus rev_lag_asymmetry",
+        "[-4, 4]",
         Lag,
     ),
     // Significance against surrogate drivers.
@@ -448,6 +484,12 @@ static SCHEMA: [FeatureDef; 74] = [
         "cycle_period_mismatch",
         "abs(ln(driver period / response period)) of the two dominant cycles, clamped (0: same rhythm)",
         "[0, 3]",
+        Seasonal,
+    ),
+    def(
+        "surrogate_margin_best",
+        "skill_final_mean minus the larger of surrogate_mean and seasonal_mean: skill beyond the stronger null",
+        "[-2, 2]",
         Seasonal,
     ),
     // Context from the series themselves.
@@ -532,6 +574,24 @@ static SCHEMA: [FeatureDef; 74] = [
     def(
         "common_driver_margin",
         "skill_final_mean minus common_driver_skill: skill beyond what an observed common driver explains",
+        "[-2, 2]",
+        Context,
+    ),
+    def(
+        "response_skill_rank",
+        "share of the response's observed drivers whose skill_final_mean is at or below this pair's (1: the best driver of this response)",
+        "(0, 1]",
+        Context,
+    ),
+    def(
+        "response_mean_skill",
+        "mean skill_final_mean over every observed driver of this response: high when the response cross-maps everything, as a strongly forced variable does",
+        "[-1, 1]",
+        Context,
+    ),
+    def(
+        "skill_minus_response_mean",
+        "skill_final_mean minus response_mean_skill",
         "[-2, 2]",
         Context,
     ),
@@ -701,10 +761,10 @@ mod tests {
     /// only together with a bump of SCHEMA_VERSION (model files record the hash).
     #[test]
     fn schema_hash_is_pinned() {
-        assert_eq!(SCHEMA_VERSION, 2);
+        assert_eq!(SCHEMA_VERSION, 3);
         assert_eq!(
             schema_hash(),
-            "a330399d638e9f599e29d222b196082988593e3b6e35ddf271d4f9ad38e65dcb"
+            "9a450956308a614b08abbd01b08c84acaf0d77146af1eb1a825baabdf00129eb"
         );
     }
 
@@ -713,7 +773,7 @@ mod tests {
         let all = names();
         let picked: Vec<&str> = curve_only_indices().into_iter().map(|i| all[i]).collect();
         assert_eq!(picked, curve_only_names());
-        assert_eq!(picked.len(), 41);
+        assert_eq!(picked.len(), 44);
     }
 
     #[test]

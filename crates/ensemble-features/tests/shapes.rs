@@ -171,6 +171,8 @@ fn context() -> PairContext {
         simplex_response: 0.5,
         correlation: -0.3,
         common_driver_skill: 0.2,
+        response_skill_rank: 0.5,
+        response_mean_skill: 0.4,
     }
 }
 

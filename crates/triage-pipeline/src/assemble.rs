@@ -85,6 +85,8 @@ pub fn assemble(
                     &series.columns[response],
                 ),
                 common_driver_skill: common_driver_skill(&final_skill, driver, response),
+                response_skill_rank: response_rank(&final_skill, driver, response),
+                response_mean_skill: response_mean(&final_skill, response),
             };
             let evidence = PairEvidence {
                 forward: curve(forward),
@@ -133,6 +135,45 @@ fn common_driver_skill(
             Some(best.map_or(v, |b| b.max(v)))
         })
         .unwrap_or(0.0)
+}
+
+/// Skills of every observed driver of `response` at the largest library size (finite only).
+fn response_skills(
+    final_skill: &BTreeMap<(usize, usize), f64>,
+    response: usize,
+) -> impl Iterator<Item = f64> + '_ {
+    final_skill
+        .iter()
+        .filter(move |((_, r), s)| *r == response && s.is_finite())
+        .map(|(_, &s)| s)
+}
+
+/// Share of the response's drivers whose skill is at or below this pair's (NaN when this pair's
+/// skill is undefined).
+fn response_rank(
+    final_skill: &BTreeMap<(usize, usize), f64>,
+    driver: usize,
+    response: usize,
+) -> f64 {
+    let own = final_skill
+        .get(&(driver, response))
+        .copied()
+        .unwrap_or(f64::NAN);
+    if !own.is_finite() {
+        return f64::NAN;
+    }
+    let (at_or_below, all) = response_skills(final_skill, response)
+        .fold((0usize, 0usize), |(b, n), s| {
+            (b + usize::from(s <= own), n + 1)
+        });
+    at_or_below as f64 / all as f64
+}
+
+/// Mean skill over every observed driver of the response (NaN when none is defined).
+fn response_mean(final_skill: &BTreeMap<(usize, usize), f64>, response: usize) -> f64 {
+    let (sum, n) =
+        response_skills(final_skill, response).fold((0.0, 0usize), |(s, n), v| (s + v, n + 1));
+    if n == 0 { f64::NAN } else { sum / n as f64 }
 }
 
 fn cycle(s: &Season) -> Cycle {
