@@ -133,6 +133,7 @@ impl ModelBundle {
             head: head.head,
             ood_score: d[0],
             ood: head.ood.is_unfamiliar(d[0]),
+            ood_threshold: head.ood.threshold,
             fine,
         })
     }

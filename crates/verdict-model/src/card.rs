@@ -35,6 +35,10 @@ pub struct CandidateScore {
     pub folds_used: usize,
     /// Folds skipped (training side lacked a class or rows).
     pub folds_skipped: usize,
+    /// Log-loss on the validation suite of the candidate fitted on every training row.
+    pub suite_log_loss: Option<f64>,
+    /// ROC AUC on the validation suite.
+    pub suite_roc_auc: Option<f64>,
 }
 
 /// Held-out scores of the chosen candidate on one fold.
@@ -87,6 +91,12 @@ pub struct HeadCard {
     pub per_fold: Vec<FoldScore>,
     /// Reliability bins of the pooled held-out predictions.
     pub reliability: Vec<ReliabilityBin>,
+    /// How the model was chosen.
+    pub selection: String,
+    /// Figures of the chosen model on the validation suite, when one was given.
+    pub suite: Option<Summary>,
+    /// Reliability bins on the validation suite.
+    pub suite_reliability: Vec<ReliabilityBin>,
 }
 
 /// A quality target and whether validation met it.
@@ -100,6 +110,19 @@ pub struct TargetCheck {
     pub value: Option<f64>,
     /// Whether it was met.
     pub met: bool,
+    /// The same figure out of family (leave-one-family-out), for comparison.
+    pub out_of_family: Option<f64>,
+}
+
+/// The validation suite a model was chosen on.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SuiteIdentity {
+    /// The suite's name (its spec).
+    pub name: String,
+    /// Pairs in the suite.
+    pub rows: usize,
+    /// Share of causal pairs in the suite.
+    pub causal_share: f64,
 }
 
 /// The model card.
@@ -129,6 +152,10 @@ pub struct ModelCard {
     pub policy: VerdictPolicy,
     /// Quality targets against the full head's validation figures.
     pub targets: Vec<TargetCheck>,
+    /// Share of causal pairs in the training rows: the base rate the probabilities assume.
+    pub causal_share: f64,
+    /// The validation suite the model was chosen on, if any.
+    pub suite: Option<SuiteIdentity>,
 }
 
 fn opt4(v: Option<f64>) -> String {
@@ -179,7 +206,22 @@ impl ModelCard {
             self.fine_head.as_deref().unwrap_or("none")
         );
 
-        let _ = writeln!(s, "## Training rows ({})\n", self.rows);
+        let _ = writeln!(
+            s,
+            "- Base rate: {:.1}% of training pairs are causal; the probabilities assume a share \
+             like it, so on data with far more or fewer causal pairs they shift",
+            100.0 * self.causal_share
+        );
+        if let Some(v) = &self.suite {
+            let _ = writeln!(
+                s,
+                "- Validation suite: `{}`, {} pairs ({:.1}% causal), never trained on",
+                v.name,
+                v.rows,
+                100.0 * v.causal_share
+            );
+        }
+        let _ = writeln!(s, "\n## Training rows ({})\n", self.rows);
         let _ = writeln!(
             s,
             "| family | direct | indirect | confounded | independent |"
@@ -205,17 +247,26 @@ impl ModelCard {
         }
 
         if !self.targets.is_empty() {
-            let _ = writeln!(s, "\n## Quality targets (full head, out of family)\n");
-            let _ = writeln!(s, "| figure | target | value | met |");
-            let _ = writeln!(s, "|---|---|---:|---|");
+            let judged = if self.suite.is_some() {
+                "validation suite"
+            } else {
+                "out of family"
+            };
+            let _ = writeln!(s, "\n## Quality targets (full head, {judged})\n");
+            let _ = writeln!(
+                s,
+                "| figure | target | {judged} | met | leave-one-family-out |"
+            );
+            let _ = writeln!(s, "|---|---|---:|---|---:|");
             for t in &self.targets {
                 let _ = writeln!(
                     s,
-                    "| {} | {} | {} | {} |",
+                    "| {} | {} | {} | {} | {} |",
                     t.name,
                     t.target,
                     opt(t.value),
-                    if t.met { "yes" } else { "no" }
+                    if t.met { "yes" } else { "no" },
+                    opt(t.out_of_family)
                 );
             }
         }
@@ -234,6 +285,7 @@ impl ModelCard {
                 h.rows_used, h.rows_dropped_unavailable
             );
             let _ = writeln!(s, "- Validation: {}", h.validation);
+            let _ = writeln!(s, "- Selection: {}", h.selection);
             let _ = writeln!(s, "- Chosen model: {}", h.chosen);
             let _ = writeln!(
                 s,
@@ -250,26 +302,30 @@ impl ModelCard {
             );
             let _ = writeln!(
                 s,
-                "| candidate | held-out log-loss | held-out ROC AUC | folds used | skipped |"
+                "| candidate | suite log-loss | suite ROC AUC | out-of-family log-loss | out-of-family ROC AUC | folds used | skipped |"
             );
-            let _ = writeln!(s, "|---|---:|---:|---:|---:|");
+            let _ = writeln!(s, "|---|---:|---:|---:|---:|---:|---:|");
             for c in &h.candidates {
                 let _ = writeln!(
                     s,
-                    "| {} | {} | {} | {} | {} |",
+                    "| {} | {} | {} | {} | {} | {} | {} |",
                     c.name,
+                    opt4(c.suite_log_loss),
+                    opt(c.suite_roc_auc),
                     opt4(c.cv_log_loss),
                     opt(c.cv_roc_auc),
                     c.folds_used,
                     c.folds_skipped
                 );
             }
-            if let Some(cv) = &h.cv {
-                let _ = writeln!(
-                    s,
-                    "\nHeld-out figures of the chosen model ({} rows, {} causal):\n",
-                    cv.n, cv.n_causal
-                );
+            for (title, summary) in [
+                ("Validation-suite figures of the chosen model", &h.suite),
+                ("Out-of-family figures of the chosen model", &h.cv),
+            ] {
+                let Some(cv) = summary else {
+                    continue;
+                };
+                let _ = writeln!(s, "\n{title} ({} rows, {} causal):\n", cv.n, cv.n_causal);
                 let _ = writeln!(s, "| figure | value |");
                 let _ = writeln!(s, "|---|---:|");
                 for (k, v) in [
@@ -291,6 +347,14 @@ impl ModelCard {
                     ("review rate", Some(cv.review_rate)),
                 ] {
                     let _ = writeln!(s, "| {k} | {} |", opt(v));
+                }
+                if !std::ptr::eq(summary, &h.cv) {
+                    let _ = writeln!(s, "\n| form | rows | accuracy |");
+                    let _ = writeln!(s, "|---|---:|---:|");
+                    for f in &cv.per_family {
+                        let _ = writeln!(s, "| {} | {} | {:.3} |", f.family, f.n, f.accuracy);
+                    }
+                    continue;
                 }
                 let _ = writeln!(s, "\n| held out | rows | log-loss | ROC AUC | accuracy |");
                 let _ = writeln!(s, "|---|---:|---:|---:|---:|");

@@ -43,6 +43,7 @@
 
 use serde::{Deserialize, Serialize};
 
+pub mod boost;
 mod bundle;
 pub mod calibrate;
 pub mod card;
@@ -58,7 +59,7 @@ pub mod verdict;
 
 pub use card::ModelCard;
 pub use error::ModelError;
-pub use fit::{Candidate, FitConfig, fit};
+pub use fit::{Candidate, FitConfig, fit, fit_with_suite};
 pub use model_file::{FORMAT_VERSION, MAGIC};
 pub use verdict::{Reason, VerdictPolicy, decide, decide_unusable, reasons_field};
 
@@ -203,6 +204,8 @@ pub struct Prediction {
     pub ood_score: f64,
     /// Whether `ood_score` exceeds the head's stored training percentile.
     pub ood: bool,
+    /// The answering head's threshold on `ood_score` (its training percentile).
+    pub ood_threshold: f64,
     /// Probabilities of the four fine labels in [`FineLabel::ALL`] order, when the fine head
     /// exists and the full head answered. Not calibrated.
     pub fine: Option<[f64; 4]>,

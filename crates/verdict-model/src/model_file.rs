@@ -19,7 +19,7 @@ use crate::{ModelBundle, ModelError};
 /// First eight bytes of every model file.
 pub const MAGIC: [u8; 8] = [0x89, b'V', b'R', b'D', b'M', b'\r', b'\n', 0x1a];
 /// Format version written and read by this build.
-pub const FORMAT_VERSION: u16 = 1;
+pub const FORMAT_VERSION: u16 = 2;
 /// Largest payload accepted, in bytes (64 MiB).
 pub const PAYLOAD_LIMIT: usize = 64 * 1024 * 1024;
 /// Header length in bytes.
