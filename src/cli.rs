@@ -96,9 +96,15 @@ pub struct EngineArgs {
     #[arg(long, default_value_t = 39, value_name = "N")]
     pub surrogates: usize,
     /// Seasonal period in time steps that every variable's seasonal surrogates keep (default:
-    /// each variable's own dominant cycle, found from its periodogram).
+    /// each variable's own dominant cycle, found from its periodogram, counted as a season only
+    /// with a period of at least 4 steps and a strength of at least 0.1).
     #[arg(long, value_name = "STEPS")]
     pub period: Option<usize>,
+    /// Make the seasonal surrogates plain phase-randomised ones, for records known to carry no
+    /// outside rhythm (seasons, tides, daily cycles).
+    #[arg(long)]
+    #[serde(default)]
+    pub no_seasonal_surrogates: bool,
 }
 
 /// Options of the verdict.
@@ -108,7 +114,7 @@ pub struct VerdictArgs {
     #[arg(long, value_name = "PATH")]
     pub model: Option<PathBuf>,
     /// Probabilities inside LO,HI are sent to review.
-    #[arg(long, default_value = "0.25,0.75", value_name = "LO,HI")]
+    #[arg(long, default_value = verdict_model::verdict::DEFAULT_BAND_TEXT, value_name = "LO,HI")]
     pub review_band: String,
 }
 
@@ -192,6 +198,11 @@ pub struct TrainArgs {
     /// Output directory for model.bin and its card.
     #[arg(long, value_name = "DIR")]
     pub out: PathBuf,
+    /// Validation suite (a simulator spec of systems never trained on, such as
+    /// training-sim/specs/published.toml): each head's model is chosen by log-loss on it, and
+    /// its figures go into the card (default: choose by leave-one-family-out).
+    #[arg(long, value_name = "SPEC")]
+    pub suite: Option<PathBuf>,
     #[command(flatten)]
     pub engine: EngineArgs,
 }
@@ -210,7 +221,7 @@ pub struct EvaluateArgs {
     #[command(flatten)]
     pub engine: EngineArgs,
     /// Probabilities inside LO,HI are sent to review.
-    #[arg(long, default_value = "0.25,0.75", value_name = "LO,HI")]
+    #[arg(long, default_value = verdict_model::verdict::DEFAULT_BAND_TEXT, value_name = "LO,HI")]
     pub review_band: String,
 }
 

@@ -22,6 +22,7 @@ pub fn analysis_settings(args: &EngineArgs) -> anyhow::Result<AnalysisSettings> 
             max_lag: args.max_lag,
             surrogates: args.surrogates,
             period: args.period,
+            seasonal: !args.no_seasonal_surrogates,
             seed: args.seed,
         },
         quality: QualityThresholds::default(),
@@ -57,7 +58,7 @@ pub fn parse_sizes(text: &str) -> anyhow::Result<LibrarySizes> {
 pub fn parse_band(text: &str) -> anyhow::Result<(f64, f64)> {
     let bad = || {
         format!(
-            "--review-band `{text}`: give two probabilities LO,HI with 0 <= LO <= 0.5 <= HI <= 1, e.g. 0.25,0.75"
+            "--review-band `{text}`: give two probabilities LO,HI with 0 <= LO <= 0.5 <= HI <= 1, e.g. 0.3,0.7"
         )
     };
     let (lo, hi) = text.split_once(',').with_context(bad)?;

@@ -3,18 +3,19 @@
 mod common;
 
 use assert_cmd::Command;
-use common::{coupled_logistic_csv, read_csv, temp};
+use common::{
+    coupled_logistic_csv, logistic_and_noisy_sine_csv, logistic_pair_csv, read_csv, temp,
+};
 use predicates::prelude::*;
 
 fn bin() -> Command {
     Command::cargo_bin("ccm-triage").expect("binary built")
 }
 
-/// Write `n` points of the coupled logistic maps into `dir` and scan them with `extra` flags;
-/// returns the output directory.
-fn scan_maps(dir: &std::path::Path, name: &str, n: usize, extra: &[&str]) -> std::path::PathBuf {
+/// Write `csv` into `dir` and scan it with `extra` flags; returns the output directory.
+fn scan_text(dir: &std::path::Path, name: &str, csv: &str, extra: &[&str]) -> std::path::PathBuf {
     let data = dir.join(format!("{name}.csv"));
-    std::fs::write(&data, coupled_logistic_csv(n)).unwrap();
+    std::fs::write(&data, csv).unwrap();
     let out = dir.join(name);
     bin()
         .arg("scan")
@@ -27,12 +28,26 @@ fn scan_maps(dir: &std::path::Path, name: &str, n: usize, extra: &[&str]) -> std
     out
 }
 
-/// Scan the coupled logistic maps of Sugihara et al. (2012) with the shipped model; returns
-/// (verdict, p_causal) of X -> Y and of Y -> X.
-fn logistic_map_verdicts() -> [(String, f64); 2] {
+/// Write `n` points of the coupled logistic maps into `dir` and scan them with `extra` flags;
+/// returns the output directory.
+fn scan_maps(dir: &std::path::Path, name: &str, n: usize, extra: &[&str]) -> std::path::PathBuf {
+    scan_text(dir, name, &coupled_logistic_csv(n), extra)
+}
+
+/// Scan `csv` (two series) with the shipped model; returns (verdict, p_causal) of the first
+/// series -> the second and of the second -> the first.
+fn verdicts(csv: &str) -> [(String, f64); 2] {
     let dir = temp();
-    let out = scan_maps(dir.path(), "run", 400, &["--quiet"]);
+    let out = scan_text(dir.path(), "run", csv, &["--quiet"]);
     let labels = read_csv(&out.join("labels.csv"));
+    let names: Vec<String> = csv
+        .lines()
+        .next()
+        .unwrap()
+        .split(',')
+        .skip(1)
+        .map(String::from)
+        .collect();
     let get = |d: &str, r: &str| {
         let row = labels
             .iter()
@@ -43,7 +58,7 @@ fn logistic_map_verdicts() -> [(String, f64); 2] {
             row["p_causal"].parse::<f64>().unwrap(),
         )
     };
-    [get("x", "y"), get("y", "x")]
+    [get(&names[0], &names[1]), get(&names[1], &names[0])]
 }
 
 /// Coupled logistic maps of Sugihara et al. (2012), r_x = 3.8, r_y = 3.5, X drives Y only
@@ -51,20 +66,42 @@ fn logistic_map_verdicts() -> [(String, f64); 2] {
 /// rank X -> Y well above Y -> X and must not call Y -> X causal.
 #[test]
 fn shipped_model_ranks_the_true_direction_of_coupled_logistic_maps_first() {
-    let [(_, p_xy), (v_yx, p_yx)] = logistic_map_verdicts();
+    let [(_, p_xy), (v_yx, p_yx)] = verdicts(&coupled_logistic_csv(400));
     assert!(p_xy > p_yx + 0.3, "X -> Y {p_xy}, Y -> X {p_yx}");
     assert_ne!(v_yx, "causal", "Y -> X p = {p_yx}");
 }
 
-/// The acceptance check of the classifier issue: X -> Y must be called `causal` outright.
-/// The current shipped model gives it p = 0.73, just inside the review band, so the check is
-/// kept but not run until a model that generalises better is shipped.
+/// Acceptance: the one-way form of Sugihara et al. (2012) with beta_xy = 0 (X drives Y, Y does
+/// not act on X) is decided both ways, at two record lengths: X -> Y causal, Y -> X non-causal.
 #[test]
-#[ignore = "shipped model sends X -> Y to review (p = 0.73); see the model card"]
-fn shipped_model_calls_the_true_direction_of_coupled_logistic_maps_causal() {
-    let [(v_xy, p_xy), (v_yx, _)] = logistic_map_verdicts();
-    assert_eq!(v_xy, "causal", "X -> Y p = {p_xy}");
-    assert_ne!(v_yx, "causal");
+fn shipped_model_decides_one_way_coupled_logistic_maps() {
+    for n in [400, 1000] {
+        let [(v_xy, p_xy), (v_yx, p_yx)] = verdicts(&logistic_pair_csv(n, 0.0, 0.1));
+        assert_eq!(v_xy, "causal", "n = {n}: X -> Y p = {p_xy}");
+        assert_eq!(v_yx, "non-causal", "n = {n}: Y -> X p = {p_yx}");
+    }
+}
+
+/// Acceptance: the two-way form of Sugihara et al. (2012) (r_x 3.8, r_y 3.5, beta_xy 0.02,
+/// beta_yx 0.1, from memory): each species acts on the other, so both directions are causal.
+#[test]
+fn shipped_model_calls_both_directions_of_two_way_coupled_logistic_maps_causal() {
+    for n in [400, 1000] {
+        let [(v_xy, p_xy), (v_yx, p_yx)] = verdicts(&logistic_pair_csv(n, 0.02, 0.1));
+        assert_eq!(v_xy, "causal", "n = {n}: X -> Y p = {p_xy}");
+        assert_eq!(v_yx, "causal", "n = {n}: Y -> X p = {p_yx}");
+    }
+}
+
+/// Acceptance: an uncoupled chaotic logistic map beside an unrelated noisy sine share nothing,
+/// so neither direction is causal (a fact of the construction).
+#[test]
+fn shipped_model_calls_a_logistic_map_and_an_unrelated_noisy_sine_non_causal() {
+    for n in [400, 1000] {
+        let [(v_xs, p_xs), (v_sx, p_sx)] = verdicts(&logistic_and_noisy_sine_csv(n));
+        assert_eq!(v_xs, "non-causal", "n = {n}: x -> s p = {p_xs}");
+        assert_eq!(v_sx, "non-causal", "n = {n}: s -> x p = {p_sx}");
+    }
 }
 
 #[test]

@@ -22,7 +22,7 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
         engine: default_engine(),
         verdict: VerdictArgs {
             model: None,
-            review_band: "0.25,0.75".into(),
+            review_band: verdict_model::verdict::DEFAULT_BAND_TEXT.into(),
         },
     };
     let first = STORY
@@ -33,37 +33,55 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
     }
     let outcome = super::scan::run_scan(&scan, quiet)?;
     let key = answer_key()?;
-    let mut table = String::new();
+    let mut rows = Vec::new();
     let (mut agree, mut wrong, mut review) = (0, 0, 0);
-    table.push_str(&format!(
-        "{:<34} {:>8}  {:<11} {:<12}\n",
-        "driver -> response", "p_causal", "verdict", "answer key"
-    ));
     for (rec, j) in outcome.records.iter().zip(&outcome.judgements) {
         let (d, r) = (&outcome.names[rec.driver], &outcome.names[rec.response]);
         let truth = key
             .iter()
             .find(|(kd, kr, _)| kd == d && kr == r)
-            .map(|(_, _, l)| l.as_str())
+            .map(|(_, _, l)| l.clone())
             .with_context(|| format!("answer key has no row for {d} -> {r}"))?;
-        let causal = matches!(truth, "direct" | "indirect");
-        match j.verdict {
-            Verdict::Review => review += 1,
-            Verdict::Causal if causal => agree += 1,
-            Verdict::NonCausal if !causal => agree += 1,
-            _ => wrong += 1,
+        let causal = matches!(truth.as_str(), "direct" | "indirect");
+        let agrees = match j.verdict {
+            Verdict::Review => {
+                review += 1;
+                "-"
+            }
+            Verdict::Causal if causal => "yes",
+            Verdict::NonCausal if !causal => "yes",
+            _ => "NO",
+        };
+        match agrees {
+            "yes" => agree += 1,
+            "NO" => wrong += 1,
+            _ => {}
         }
-        table.push_str(&format!(
-            "{:<34} {:>8.2}  {:<11} {:<12}\n",
+        rows.push((
+            j.verdict.sort_rank(),
             format!("{d} -> {r}"),
+            j,
+            truth,
+            agrees,
+        ));
+    }
+    // Review rows first, as in labels.csv.
+    rows.sort_by_key(|r| r.0);
+    let mut table = format!(
+        "{:<34} {:>6}  {:<11} {:<26} {:<12} {}\n",
+        "driver -> response", "p", "verdict", "reasons", "answer key", "agrees"
+    );
+    for (_, pair, j, truth, agrees) in &rows {
+        table.push_str(&format!(
+            "{pair:<34} {:>6.2}  {:<11} {:<26} {truth:<12} {agrees}\n",
             j.p_causal,
             j.verdict.as_str(),
-            truth
+            verdict_model::reasons_field(&j.reasons),
         ));
     }
     println!("{table}");
     println!(
-        "{} pairs: {agree} agree with the answer key, {wrong} disagree, {review} sent to review",
+        "{} pairs: {agree} agree with the answer key, {wrong} disagree (marked NO), {review} sent to review",
         outcome.records.len()
     );
     println!(

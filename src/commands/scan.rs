@@ -330,6 +330,7 @@ fn finish(
         },
         "settings": p.manifest.settings,
         "embedding": embedding_record(&p.series.names, &p.embeddings),
+        "cycles": cycles_record(&p.series, &p.settings),
         "model": model_record(model),
         "review_band": [policy.band.0, policy.band.1],
         "feature_schema": {"version": ensemble_features::SCHEMA_VERSION, "hash": ensemble_features::schema_hash()},
@@ -579,12 +580,33 @@ pub fn analysis_settings_json(settings: &triage_pipeline::AnalysisSettings) -> s
         "max_lag": c.max_lag,
         "surrogates": c.surrogates,
         "period": c.period,
+        "seasonal_surrogates": c.seasonal,
         "quality_thresholds": {
             "min_largest_library": settings.quality.min_largest_library,
             "min_self_forecast": settings.quality.min_self_forecast,
             "converged_skill": settings.quality.converged_skill,
         },
     })
+}
+
+/// Each variable's dominant cycle as the seasonal surrogates used it (strength 0: no season).
+fn cycles_record(
+    series: &triage_pipeline::SeriesSet,
+    settings: &triage_pipeline::AnalysisSettings,
+) -> serde_json::Value {
+    series
+        .names
+        .iter()
+        .zip(triage_pipeline::cycles(series, settings.crossmap.period))
+        .map(|(n, c)| {
+            serde_json::json!({
+                "variable": n,
+                "period": c.map(|c| c.period),
+                "strength": c.map(|c| c.strength),
+                "season": c.is_some_and(|c| c.has_cycle()) && settings.crossmap.seasonal,
+            })
+        })
+        .collect()
 }
 
 fn embedding_record(names: &[String], embeddings: &[Embedding]) -> serde_json::Value {

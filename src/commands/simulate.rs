@@ -99,6 +99,21 @@ pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
         systems.len(),
         skipped.len()
     );
+    let suite = match &args.suite {
+        Some(path) => {
+            let (suite_spec, suite_id) = read_spec(path)?;
+            let (suite_systems, _) = analysed(&suite_spec, &settings, quiet)?;
+            let suite_set = triage_pipeline::training_set(&suite_systems);
+            eprintln!(
+                "validation suite {}: {} pairs from {} systems",
+                suite_id.name,
+                suite_set.rows.len(),
+                suite_systems.len()
+            );
+            Some((suite_set, suite_id.name))
+        }
+        None => None,
+    };
     let cfg = FitConfig {
         seed: args.engine.seed,
         curve_only_names: ensemble_features::curve_only_names()
@@ -106,9 +121,10 @@ pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
             .map(String::from)
             .collect(),
         spec: identity,
+        suite_name: suite.as_ref().map(|s| s.1.clone()).unwrap_or_default(),
         ..FitConfig::default()
     };
-    let bundle = verdict_model::fit(&set, &cfg)?;
+    let bundle = verdict_model::fit_with_suite(&set, suite.as_ref().map(|s| &s.0), &cfg)?;
     let bytes = bundle.to_bytes()?;
     let card = bundle.card();
     out.write_bytes("model-card.md", card.to_markdown().as_bytes())?;
@@ -137,13 +153,20 @@ pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
         args.out.join("model.bin").display(),
         verdict_model::sha256_hex(&bytes)
     );
+    let judged = if card.suite.is_some() {
+        "validation suite"
+    } else {
+        "out of family"
+    };
+    let f = |v: Option<f64>| v.map_or("n/a".to_string(), |v| format!("{v:.3}"));
     for t in &card.targets {
         println!(
-            "  {:<40} target {:<8} measured {:<8} {}",
+            "  {:<32} target {:<8} {judged} {:<6} {:<8} out of family {}",
             t.name,
             t.target,
-            t.value.map_or("n/a".to_string(), |v| format!("{v:.3}")),
-            if t.met { "met" } else { "NOT met" }
+            f(t.value),
+            if t.met { "met" } else { "NOT met" },
+            f(t.out_of_family)
         );
     }
     Ok(())
@@ -239,6 +262,10 @@ pub fn evaluate(args: EvaluateArgs, quiet: bool) -> anyhow::Result<()> {
             .map(|s| s.to_string())
             .collect(),
             rows,
+        })?;
+        out.export(&CsvTable {
+            name: "evaluated-set.csv".into(),
+            ..training_table(&triage_pipeline::training_set(&systems))
         })?;
         out.export(&JsonDocument {
             name: "metrics.json".into(),

@@ -176,6 +176,11 @@ pub fn labels(names: &[String], records: &[PairRecord], judgements: &[Judgement]
                 } else {
                     format!("{:.3}", j.ood_score)
                 },
+                if j.ood_threshold.is_nan() {
+                    String::new()
+                } else {
+                    format!("{:.3}", j.ood_threshold)
+                },
                 fine(0),
                 fine(1),
                 fine(2),
@@ -193,6 +198,7 @@ pub fn labels(names: &[String], records: &[PairRecord], judgements: &[Judgement]
             "reasons",
             "model_head",
             "unfamiliarity",
+            "unfamiliarity_threshold",
             "p_direct",
             "p_indirect",
             "p_confounded",

@@ -145,7 +145,7 @@ pub(crate) fn draw(spec: &Spec, index: usize, attempt: u32) -> CanonicalDraw {
             let v = if uncoupled {
                 0
             } else {
-                d.weighted(&[1.0, 1.0, 1.5])
+                d.weighted(&[1.0, 1.0, 2.0])
             };
             // Log-uniform couplings: weak links (such as the paper's 0.02) are as common as
             // strong ones.

@@ -387,7 +387,9 @@ mod tests {
             Spec::from_toml_str(&std::fs::read_to_string(format!("{dir}/{n}")).unwrap()).unwrap()
         };
         let default = read("default.toml");
-        assert!((600..=1000).contains(&default.total_count()));
+        assert!((900..=1500).contains(&default.total_count()));
+        assert!(read("published.toml").canonical.count > 0);
+        assert_ne!(read("published.toml").seed, default.seed);
         assert_eq!(read("small.toml").total_count(), 12);
         let lab = read("lab-example.toml");
         assert_eq!(lab.sampling.length, spec::IntRange::new(120, 120));

@@ -18,6 +18,8 @@ pub struct Judgement {
     pub head: &'static str,
     /// Distance from the training data (the model's own scale).
     pub ood_score: f64,
+    /// Distance above which the pair counts as unfamiliar (the head's training percentile).
+    pub ood_threshold: f64,
     /// Probabilities of direct, indirect, confounded, independent, when the model has that head.
     pub fine: Option<[f64; 4]>,
 }
@@ -44,6 +46,7 @@ pub fn judge(
                     reasons,
                     head: pred.head.as_str(),
                     ood_score: pred.ood_score,
+                    ood_threshold: pred.ood_threshold,
                     fine: pred.fine,
                 })
             }
@@ -55,6 +58,7 @@ pub fn judge(
                     reasons,
                     head: "none",
                     ood_score: f64::NAN,
+                    ood_threshold: f64::NAN,
                     fine: None,
                 })
             }

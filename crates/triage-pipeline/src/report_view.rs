@@ -36,6 +36,35 @@ pub struct RunFacts {
     pub notes: Vec<String>,
 }
 
+/// Each reason with its explanation; a review pair whose probability alone would have decided
+/// it first says so, so that a reader does not wonder why p = 0.9 is under review.
+fn reasons_view(j: &Judgement) -> Vec<(String, String)> {
+    let mut out: Vec<(String, String)> = Vec::new();
+    if j.verdict == Verdict::Review
+        && j.p_causal.is_finite()
+        && !j.reasons.contains(&verdict_model::Reason::Uncertain)
+    {
+        let side = if j.p_causal >= 0.5 {
+            "above the review band, so the model alone would call it causal"
+        } else {
+            "below the review band, so the model alone would call it non-causal"
+        };
+        out.push((
+            String::new(),
+            format!(
+                "p = {:.2} lies {side}; the pair is under review for the reasons below.",
+                j.p_causal
+            ),
+        ));
+    }
+    out.extend(
+        j.reasons
+            .iter()
+            .map(|r| (r.code().to_string(), r.explain().to_string())),
+    );
+    out
+}
+
 /// Report view of a run. `embeddings` may be empty (ensembles computed elsewhere).
 pub fn report_view(
     facts: &RunFacts,
@@ -60,11 +89,7 @@ pub fn report_view(
                 Verdict::NonCausal => VerdictKind::NonCausal,
                 Verdict::Review => VerdictKind::Review,
             },
-            reasons: j
-                .reasons
-                .iter()
-                .map(|r| (r.code().to_string(), r.explain().to_string()))
-                .collect(),
+            reasons: reasons_view(j),
             library_sizes: rec.evidence.forward.library_sizes.clone(),
             forward: rec.evidence.forward.skills.clone(),
             reverse: rec
