@@ -107,6 +107,82 @@ pub struct CanonicalDraw {
     pub missing_fraction: f64,
     /// Seed of the noise and missing-cell streams.
     pub noise_seed: u64,
+    /// An unrelated record observed beside the system (column `u`), if any.
+    pub unrelated: Option<Unrelated>,
+}
+
+/// A record that has nothing to do with the system, observed beside it as column `u`, as lab
+/// tables often hold one: independent of every other column both ways.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Unrelated {
+    /// The x coordinate of its own Lorenz (1963) flow (sigma 10, rho 28, beta 8/3).
+    Lorenz,
+    /// AR(1) noise.
+    Red,
+    /// A noisy cycle of its own period, like a temperature record of another place.
+    Cycle,
+}
+
+impl Unrelated {
+    const ALL: [Unrelated; 3] = [Unrelated::Lorenz, Unrelated::Red, Unrelated::Cycle];
+
+    /// The record, `n` points, from its own stream.
+    fn series(self, n: usize, seed: u64) -> Vec<f64> {
+        let mut d = Draw::new(splitmix64(seed ^ 0x14));
+        match self {
+            Unrelated::Lorenz => {
+                let interval = d.uniform(0.03, 0.15);
+                let steps = (interval / 0.005).ceil() as usize;
+                let h = interval / steps as f64;
+                let rhs = |s: [f64; 3]| {
+                    [
+                        10.0 * (s[1] - s[0]),
+                        s[0] * (28.0 - s[2]) - s[1],
+                        s[0] * s[1] - 8.0 / 3.0 * s[2],
+                    ]
+                };
+                let add =
+                    |a: [f64; 3], b: [f64; 3], k: f64| std::array::from_fn(|i| a[i] + k * b[i]);
+                let mut s = [d.uniform(-5.0, 5.0), d.uniform(-5.0, 5.0), 25.0];
+                let mut out = Vec::with_capacity(n);
+                for k in 0..(n + 300) {
+                    for _ in 0..steps {
+                        let k1 = rhs(s);
+                        let k2 = rhs(add(s, k1, h / 2.0));
+                        let k3 = rhs(add(s, k2, h / 2.0));
+                        let k4 = rhs(add(s, k3, h));
+                        s = std::array::from_fn(|i| {
+                            s[i] + h / 6.0 * (k1[i] + 2.0 * k2[i] + 2.0 * k3[i] + k4[i])
+                        });
+                    }
+                    if k >= 300 {
+                        out.push(s[0]);
+                    }
+                }
+                out
+            }
+            Unrelated::Red => {
+                let phi = d.uniform(0.0, 0.9);
+                let mut v = 0.0;
+                (0..n)
+                    .map(|_| {
+                        v = phi * v + d.normal();
+                        v
+                    })
+                    .collect()
+            }
+            Unrelated::Cycle => {
+                let (period, phase) = (d.uniform(5.0, 30.0), d.uniform(0.0, std::f64::consts::TAU));
+                let sd = d.uniform(0.2, 1.0);
+                (0..n)
+                    .map(|t| {
+                        (std::f64::consts::TAU * t as f64 / period + phase).sin() + sd * d.normal()
+                    })
+                    .collect()
+            }
+        }
+    }
 }
 
 impl CanonicalDraw {
@@ -257,6 +333,10 @@ pub(crate) fn draw(spec: &Spec, index: usize, attempt: u32) -> CanonicalDraw {
     } else {
         (observation_noise, process_noise, missing_fraction)
     };
+    // Drawn last, so a spec without unrelated records draws every other value as before.
+    let unrelated = d
+        .chance(spec.canonical.unrelated_share)
+        .then(|| Unrelated::ALL[d.int(0, Unrelated::ALL.len() as u64 - 1) as usize]);
     CanonicalDraw {
         id: format!("canon_{}-{:04}", form.as_str(), index),
         index,
@@ -271,6 +351,7 @@ pub(crate) fn draw(spec: &Spec, index: usize, attempt: u32) -> CanonicalDraw {
         process_noise,
         missing_fraction,
         noise_seed,
+        unrelated,
     }
 }
 
@@ -641,6 +722,19 @@ fn forced_population(d: &CanonicalDraw, init: &mut Draw) -> Result<Built, Reject
 pub(crate) fn build(d: &CanonicalDraw) -> Result<Built, Reject> {
     let mut init = Draw::new(splitmix64(d.noise_seed ^ 0x10));
     let mut built = simulate_clean(d, &mut init)?;
+    if let Some(u) = d.unrelated {
+        for v in &built.names {
+            for (a, b) in [(v.clone(), "u".to_string()), ("u".to_string(), v.clone())] {
+                built.truth.push(TruthRow {
+                    driver: a,
+                    response: b,
+                    label: Label::Independent,
+                });
+            }
+        }
+        built.names.push("u".into());
+        built.series.push(u.series(d.length as usize, d.noise_seed));
+    }
     for col in &built.series {
         let (mean, sd) = mean_sd(col);
         if sd <= 1e-8 * mean.abs().max(1e-3) {
@@ -725,6 +819,25 @@ mod tests {
                 .sum::<f64>()
                 / (x.len() as f64 * sx * sy);
             assert!(r.abs() < 0.1, "{} r = {r}", sys.id);
+        }
+    }
+
+    #[test]
+    fn an_unrelated_record_is_independent_both_ways() {
+        let s = spec(
+            "seed = 4\n[sampling]\nlength = 200\n[canonical]\ncount = 12\nunrelated_share = 1\n",
+        );
+        for sys in crate::simulate(&s).unwrap() {
+            assert_eq!(sys.variables.last().map(String::as_str), Some("u"));
+            let n = sys.variables.len();
+            assert_eq!(sys.truth.len(), n * (n - 1));
+            for t in sys
+                .truth
+                .iter()
+                .filter(|t| t.driver == "u" || t.response == "u")
+            {
+                assert_eq!(t.label, Label::Independent);
+            }
         }
     }
 

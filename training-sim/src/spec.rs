@@ -240,6 +240,8 @@ spec_table! {
         /// Share of canonical systems drawn without their coupling (or, for the shared-driver
         /// forms, with unrelated drivers).
         uncoupled_share: f64 = 0.25,
+        /// Share of canonical systems observed with an unrelated record beside them.
+        unrelated_share: f64 = 0.0,
         /// Two-species coupled logistic maps (Sugihara et al. 2012).
         logistic_pair: f64 = 1.0,
         /// Two Hénon maps, one driving the other (Schiff et al. 1996).
@@ -694,6 +696,13 @@ impl Spec {
                 key: "canonical".into(),
                 value: 0.0,
                 allowed: "at least one form weight > 0",
+            });
+        }
+        if !(0.0..=1.0).contains(&k.unrelated_share) {
+            c.fail(SpecError::OutOfRange {
+                key: "canonical.unrelated_share".into(),
+                value: k.unrelated_share,
+                allowed: "[0, 1]",
             });
         }
         if !(0.0..=1.0).contains(&k.uncoupled_share) {

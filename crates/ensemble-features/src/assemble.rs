@@ -95,16 +95,6 @@ pub fn compute(evidence: &PairEvidence) -> Vec<Option<f64>> {
     }
     if let Some(seasonal) = &evidence.seasonal {
         set_seasonal(&mut row, fwd.final_mean, seasonal);
-        let phase = evidence.surrogate_skills.as_deref().map(finite);
-        let nulls = [
-            phase.as_deref().and_then(mean),
-            mean(&finite(&seasonal.skills)),
-        ];
-        let strongest = nulls
-            .into_iter()
-            .flatten()
-            .fold(None, |m: Option<f64>, v| Some(m.map_or(v, |m| m.max(v))));
-        row.set("surrogate_margin_best", diff(fwd.final_mean, strongest));
     }
     if let Some(ctx) = &evidence.context {
         set_context(&mut row, fwd.final_mean, ctx);
@@ -116,7 +106,6 @@ fn set_curve(row: &mut Row, s: &CurveShape) {
     let asym = s.fit_asymptote();
     row.set("skill_final_mean", s.final_mean);
     row.set("skill_final_median", s.final_median);
-    row.set("fisher_z_final", s.final_mean.map(fisher_z));
     row.set("fit_asymptote", asym);
     row.set("fit_headroom", asym.zip(s.final_mean).map(|(a, m)| a - m));
     row.set("fit_r2", s.fit.and_then(|f| f.r_squared));
@@ -144,15 +133,6 @@ fn set_curve(row: &mut Row, s: &CurveShape) {
     row.set("log10_size_span", s.log10_size_span);
 }
 
-/// Clamp of Fisher z: atanh(0.999) is about 3.8, beyond which skills are equally perfect.
-const FISHER_CLAMP: f64 = 3.8;
-
-fn fisher_z(r: f64) -> f64 {
-    r.clamp(-1.0, 1.0)
-        .atanh()
-        .clamp(-FISHER_CLAMP, FISHER_CLAMP)
-}
-
 fn diff(a: Option<f64>, b: Option<f64>) -> Option<f64> {
     a.zip(b).map(|(a, b)| a - b)
 }
@@ -178,27 +158,6 @@ fn set_contrast(row: &mut Row, f: &CurveShape, r: &CurveShape) {
     row.set("diff_skill_gain", diff(f.gain, r.gain));
     row.set("diff_slope_late", diff(f.slope_late, r.slope_late));
     row.set("diff_kendall_tau", diff(f.kendall_tau, r.kendall_tau));
-    row.set(
-        "diff_fisher_z_final",
-        diff(f.final_mean.map(fisher_z), r.final_mean.map(fisher_z)),
-    );
-    row.set(
-        "diff_fit_log10_rate",
-        diff(f.fit_log10_rate(), r.fit_log10_rate()),
-    );
-}
-
-/// Best skill at negative lags minus best skill at positive lags (`None` without both sides).
-fn lag_asymmetry(p: &LagProfile) -> Option<f64> {
-    let best = |keep: fn(i32) -> bool| {
-        p.lags
-            .iter()
-            .zip(&p.skills)
-            .filter(|(l, s)| keep(**l) && s.is_finite())
-            .map(|(_, s)| *s)
-            .fold(None, |m: Option<f64>, s| Some(m.map_or(s, |m| m.max(s))))
-    };
-    diff(best(|l| l < 0), best(|l| l > 0))
 }
 
 /// The best lag of a profile and what it implies.
@@ -247,13 +206,6 @@ fn set_lag(row: &mut Row, forward: &LagProfile, reverse: Option<&LagProfile>) {
     row.set("lag_best_scaled", f.scaled);
     row.set("lag_best_skill", Some(f.skill));
     row.set("lag_gap", f.gap);
-    let asym = lag_asymmetry(forward);
-    row.set("lag_asymmetry", asym);
-    if let Some(rev) = reverse {
-        let rev_asym = lag_asymmetry(rev);
-        row.set("rev_lag_asymmetry", rev_asym);
-        row.set("diff_lag_asymmetry", diff(asym, rev_asym));
-    }
     if let Some(r) = reverse.and_then(best_lag) {
         row.set("rev_lag_best_scaled", r.scaled);
         row.set("rev_lag_gap", r.gap);

@@ -84,7 +84,7 @@ use FeatureGroup::{Context, Contrast, Curve, Lag, Seasonal, Surrogate};
 /// Column order of `features.csv`. "Skill" is the forward cross-map skill (driver estimated
 /// from the response's manifold); L is the library size; "mean curve" is the replicate mean
 /// at each L.
-static SCHEMA: [FeatureDef; 84] = [
+static SCHEMA: [FeatureDef; 77] = [
     // Plateau.
     def(
         "skill_final_mean",
@@ -96,12 +96,6 @@ static SCHEMA: [FeatureDef; 84] = [
         "skill_final_median",
         "median skill across replicates at the largest library size",
         "[-1, 1]",
-        Curve,
-    ),
-    def(
-        "fisher_z_final",
-        "Fisher z (atanh) of skill_final_mean, clamped: separates skills near 1 that the raw scale crowds together",
-        "[-3.8, 3.8]",
         Curve,
     ),
     def(
@@ -344,18 +338,6 @@ static SCHEMA: [FeatureDef; 84] = [
         "[-2, 2]",
         Contrast,
     ),
-    def(
-        "diff_fisher_z_final",
-        "fisher_z_final minus the reverse direction's: convergence asymmetry on the Fisher z scale",
-        "[-7.6, 7.6]",
-        Contrast,
-    ),
-    def(
-        "diff_fit_log10_rate",
-        "fit_log10_rate minus rev_fit_log10_rate: which direction converges faster",
-        "real, mostly [-6, 6]",
-        Contrast,
-    ),
     // Lagged cross mapping (Ye et al. 2015).
     def(
         "lag_best",
@@ -392,24 +374,6 @@ static SCHEMA: [FeatureDef; 84] = [
         "diff_lag_best_scaled",
         "lag_best_scaled minus rev_lag_best_scaled: negative when the driver leads in both views (Ye et al. 2015)",
         "[-2, 2]",
-        Lag,
-    ),
-    def(
-        "lag_asymmetry",
-        "best skill at negative lags minus best skill at positive lags: positive when the response reflects the driver's past (Ye et al. 2015)",
-        "[-2, 2]",
-        Lag,
-    ),
-    def(
-        "rev_lag_asymmetry",
-        "reverse direction: best skill at negative lags minus best at positive lags",
-        "[-2, 2]",
-        Lag,
-    ),
-    def(
-        "diff_lag_asymmetry",
-        "lag_asymmetry minus rev_lag_asymmetry",
-        "[-4, 4]",
         Lag,
     ),
     // Significance against surrogate drivers.
@@ -484,12 +448,6 @@ static SCHEMA: [FeatureDef; 84] = [
         "cycle_period_mismatch",
         "abs(ln(driver period / response period)) of the two dominant cycles, clamped (0: same rhythm)",
         "[0, 3]",
-        Seasonal,
-    ),
-    def(
-        "surrogate_margin_best",
-        "skill_final_mean minus the larger of surrogate_mean and seasonal_mean: skill beyond the stronger null",
-        "[-2, 2]",
         Seasonal,
     ),
     // Context from the series themselves.
@@ -764,7 +722,7 @@ mod tests {
         assert_eq!(SCHEMA_VERSION, 3);
         assert_eq!(
             schema_hash(),
-            "9a450956308a614b08abbd01b08c84acaf0d77146af1eb1a825baabdf00129eb"
+            "8da8ae712cd2d88634ced41ba5db5278fbaf42355bc274019648dbe808b4261e"
         );
     }
 
@@ -773,7 +731,7 @@ mod tests {
         let all = names();
         let picked: Vec<&str> = curve_only_indices().into_iter().map(|i| all[i]).collect();
         assert_eq!(picked, curve_only_names());
-        assert_eq!(picked.len(), 44);
+        assert_eq!(picked.len(), 41);
     }
 
     #[test]
