@@ -160,6 +160,10 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
     let started = Instant::now();
     let policy = policy(&args.verdict)?;
     let model = model::load(args.verdict.model.as_deref())?;
+    let out = begin_output(
+        &args.out,
+        &inputs(&[Some(&args.data), args.verdict.model.as_deref()]),
+    )?;
     let recorded = args.data.display().to_string();
     let prepared = prepare(
         &args.data,
@@ -168,7 +172,6 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
         &args.engine,
         ShardSpec::WHOLE,
     )?;
-    let out = begin_output(&args.out)?;
     let store = UnitStore::open(out.path().join(CHECKPOINT_DIR))?;
     let units = compute_units(&store, &prepared, quiet)?;
     let ensembles: Vec<PairEnsemble> = units.into_values().flatten().collect();
@@ -266,8 +269,11 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         "the settings resolved from {} differ from the shards' ones; rerun the shards with this version",
         data.display()
     );
+    let mut read: Vec<&Path> = args.shards.iter().map(|d| d.as_path()).collect();
+    read.push(&data);
+    read.extend(args.verdict.model.as_deref());
+    let out = begin_output(&args.out, &read)?;
     let ensembles = units::load_merge(&args.shards, &plan)?;
-    let out = begin_output(&args.out)?;
     let shards: Vec<String> = args
         .shards
         .iter()
@@ -290,13 +296,33 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
 
 /// The output directory, without a run.json from an earlier run: until this run writes its
 /// own run.json last, nothing in the folder looks complete.
-fn begin_output(dir: &Path) -> anyhow::Result<OutputDir> {
-    let out = OutputDir::create(dir)?;
+///
+/// `inputs` are the files and folders the run reads: no result file may replace one of them,
+/// which is checked here, before any work.
+fn begin_output(dir: &Path, inputs: &[&Path]) -> anyhow::Result<OutputDir> {
+    let out = OutputDir::create(dir)?.protect_inputs(inputs, RESULT_FILES)?;
     let old = out.path().join("run.json");
     if old.exists() {
         std::fs::remove_file(&old).with_context(|| format!("cannot replace {}", old.display()))?;
     }
     Ok(out)
+}
+
+/// Every file a labelling run may write into its output directory.
+const RESULT_FILES: &[&str] = &[
+    "curves.csv",
+    "embedding.csv",
+    "lags.csv",
+    "surrogates.csv",
+    "features.csv",
+    "labels.csv",
+    "report.html",
+    "run.json",
+];
+
+/// The paths given, without the absent ones.
+fn inputs<'a>(paths: &[Option<&'a Path>]) -> Vec<&'a Path> {
+    paths.iter().flatten().copied().collect()
 }
 
 /// Stages 3 and 4 (assemble, judge) and every result file, the same for scan and merge.
@@ -366,7 +392,10 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
     let model = model::load(args.verdict.model.as_deref())?;
     let (names, records) = curve_records(&args.curves)?;
     let judgements = judge(&records, &model.bundle, &policy)?;
-    let out = OutputDir::create(&args.out)?;
+    let out = OutputDir::create(&args.out)?.protect_inputs(
+        &inputs(&[Some(&args.curves), args.verdict.model.as_deref()]),
+        RESULT_FILES,
+    )?;
     let sha = series_io::checksum::sha256_file(&args.curves)
         .with_context(|| format!("cannot read {}", args.curves.display()))?;
     let run = serde_json::json!({
@@ -402,7 +431,7 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
 
 pub fn features(args: FeaturesArgs) -> anyhow::Result<()> {
     let (names, records) = curve_records(&args.curves)?;
-    let out = OutputDir::create(&args.out)?;
+    let out = OutputDir::create(&args.out)?.protect_inputs(&[&args.curves], &["features.csv"])?;
     out.export(&tables::features(&names, &records))?;
     println!(
         "features of {} pairs written to {}",

@@ -497,6 +497,34 @@ pub enum OutputError {
         #[source]
         source: io::Error,
     },
+
+    /// An output file would replace a file this run reads.
+    #[error(
+        "{}: this output would overwrite {}, an input of this run. Choose another --out \
+         directory, or move the input elsewhere",
+        path.display(),
+        input.display()
+    )]
+    WouldOverwriteInput {
+        /// The output path.
+        path: PathBuf,
+        /// The input it is (same path, link or file).
+        input: PathBuf,
+    },
+
+    /// The output directory is one of the run's input directories.
+    #[error(
+        "{}: the output directory is {}, an input directory of this run. Choose another --out \
+         directory",
+        dir.display(),
+        input.display()
+    )]
+    OutputIsInputDir {
+        /// The output directory.
+        dir: PathBuf,
+        /// The input directory it is.
+        input: PathBuf,
+    },
 }
 
 /// Shorten and quote a cell's text for a message, so a huge or control-laden cell cannot

@@ -1,0 +1,188 @@
+//! Hostile runs of the binary: crafted model files, outputs aimed at inputs, damaged or
+//! foreign intermediate files, concurrent runs into one folder, and inputs that ask for
+//! unbounded work. Each test names the finding it pins and the threshold it holds.
+//!
+//! The reference of every check is the tool's own documented behaviour (exit status 1 with
+//! a message naming the file and the fix, or a result identical to a clean run); the data
+//! are the coupled logistic maps of Sugihara et al. (2012), extended to a ring.
+
+mod support;
+
+use std::path::Path;
+use std::process::Command;
+use std::time::Instant;
+
+use assert_cmd::cargo::CommandCargoExt;
+use support::{SMALL, logistic_ring_csv};
+use verdict_model::ModelBundle;
+
+fn bin() -> Command {
+    Command::cargo_bin("ccm-triage").expect("binary")
+}
+
+/// Run the binary in `cwd`; returns (exit code, stdout, stderr).
+fn run(args: &[&str], cwd: &Path) -> (i32, String, String) {
+    let out = bin().args(args).current_dir(cwd).output().expect("run");
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+fn ok(args: &[&str], cwd: &Path) -> String {
+    let (code, out, err) = run(args, cwd);
+    assert_eq!(code, 0, "{args:?} failed: {err}");
+    out + &err
+}
+
+/// Exit status 1, no panic, and a message containing every word of `words`.
+fn refused(args: &[&str], cwd: &Path, words: &[&str]) -> String {
+    let (code, _, err) = run(args, cwd);
+    assert_eq!(code, 1, "{args:?}: {err}");
+    assert!(!err.contains("panicked"), "{args:?}: {err}");
+    for w in words {
+        assert!(err.contains(w), "{args:?}: `{w}` not in: {err}");
+    }
+    err
+}
+
+fn with_small<'a>(args: &[&'a str]) -> Vec<&'a str> {
+    let mut v = args.to_vec();
+    v.extend(SMALL);
+    v
+}
+
+fn dataset(dir: &Path, name: &str, vars: usize, n: usize) {
+    std::fs::write(dir.join(name), logistic_ring_csv(vars, n)).unwrap();
+}
+
+const SHIPPED_MODEL: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/models/default-model.bin");
+
+/// Finding: a model file with a valid checksum but inconsistent internal sizes passed
+/// `model-card` and panicked `scan`; non-zero reserved header bytes were accepted. Each
+/// crafted file below is refused by both commands, at load time, with exit status 1.
+#[test]
+fn crafted_model_files_are_refused_at_load_time() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    dataset(d, "data.csv", 3, 150);
+    let good = std::fs::read(SHIPPED_MODEL).unwrap();
+    let shipped = || ModelBundle::from_bytes(&good).unwrap();
+    let mut cases: Vec<(&str, Vec<u8>, &str)> = Vec::new();
+    let mut reserved = good.clone();
+    reserved[11] = 0x80;
+    cases.push(("reserved.bin", reserved, "reserved bytes"));
+    let mut m = shipped();
+    m.full.columns[0] = 47_000;
+    cases.push(("column.bin", m.to_bytes().unwrap(), "inconsistent"));
+    let mut m = shipped();
+    m.full.standardiser.scale.truncate(1);
+    cases.push(("scale.bin", m.to_bytes().unwrap(), "inconsistent"));
+    let mut m = shipped();
+    m.full.ood.precision.pop();
+    cases.push(("ood.bin", m.to_bytes().unwrap(), "inconsistent"));
+    match &mut m.full.scorer {
+        verdict_model::fit::Scorer::Forest(f) => f.trees[0].columns.push(248),
+        verdict_model::fit::Scorer::Logistic(l) => l.coef.truncate(2),
+    }
+    m.full.ood.precision.push(0.0);
+    cases.push(("scorer.bin", m.to_bytes().unwrap(), "inconsistent"));
+    for (name, bytes, word) in &cases {
+        std::fs::write(d.join(name), bytes).unwrap();
+        refused(&["model-card", name], d, &[name, word]);
+        refused(
+            &with_small(&["scan", "data.csv", "--out", "o", "--model", name]),
+            d,
+            &[name, word],
+        );
+    }
+    assert!(!d.join("o/run.json").exists());
+}
+
+/// Finding: the loader read a 3 GB file whole before checking it, and read `/dev/zero` until
+/// memory ran out. A device, a named pipe and a 3 GB (sparse) file are refused before any
+/// read; the library test holds the 0.1 s threshold, the whole process here 2 s.
+#[test]
+fn devices_pipes_and_huge_files_are_refused_as_models_at_once() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    std::fs::File::create(d.join("huge.bin"))
+        .unwrap()
+        .set_len(3_000_000_000)
+        .unwrap();
+    let mut cases = vec![
+        ("/dev/zero".to_string(), "not a regular file"),
+        ("huge.bin".to_string(), "above the largest valid model file"),
+    ];
+    if Command::new("mkfifo")
+        .arg(d.join("pipe.bin"))
+        .status()
+        .is_ok_and(|s| s.success())
+    {
+        cases.push(("pipe.bin".into(), "named pipe"));
+    }
+    for (path, word) in &cases {
+        let started = Instant::now();
+        refused(&["model-card", path], d, &[path, word]);
+        assert!(
+            started.elapsed().as_secs_f64() < 2.0,
+            "{path}: {:?}",
+            started.elapsed()
+        );
+    }
+}
+
+/// Finding: `scan d/curves.csv --out d` overwrote its input with its own curves.csv, and
+/// `label r/curves.csv --out r` rewrote a curves file made elsewhere. Both are refused
+/// before any work and the input keeps its bytes.
+#[test]
+fn outputs_never_overwrite_an_input_of_the_same_run() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    std::fs::create_dir(d.join("d")).unwrap();
+    dataset(&d.join("d"), "curves.csv", 3, 150);
+    let before = std::fs::read(d.join("d/curves.csv")).unwrap();
+    refused(
+        &with_small(&["scan", "d/curves.csv", "--out", "d"]),
+        d,
+        &["d/curves.csv", "an input of this run", "--out"],
+    );
+    assert_eq!(std::fs::read(d.join("d/curves.csv")).unwrap(), before);
+    // A curves file made elsewhere, with an extra column, then labelled into its own folder.
+    dataset(d, "data.csv", 3, 150);
+    ok(&with_small(&["scan", "data.csv", "--out", "r"]), d);
+    let curves = std::fs::read_to_string(d.join("r/curves.csv")).unwrap();
+    let mut extra = String::new();
+    for (k, line) in curves.lines().enumerate() {
+        extra.push_str(line);
+        extra.push_str(if k == 0 { ",note\n" } else { ",x\n" });
+    }
+    std::fs::write(d.join("r/curves.csv"), &extra).unwrap();
+    refused(
+        &["label", "r/curves.csv", "--out", "r"],
+        d,
+        &["an input of this run"],
+    );
+    assert_eq!(
+        std::fs::read_to_string(d.join("r/curves.csv")).unwrap(),
+        extra
+    );
+    // The same file through a link is the same input.
+    std::os::unix::fs::symlink(d.join("r/curves.csv"), d.join("link.csv")).unwrap();
+    refused(
+        &["label", "link.csv", "--out", "r"],
+        d,
+        &["an input of this run"],
+    );
+    // A merge into one of its own shard directories.
+    ok(
+        &with_small(&["scan", "data.csv", "--out", "s1", "--shard", "1/1"]),
+        d,
+    );
+    refused(
+        &["merge", "s1", "--out", "s1", "--quiet"],
+        d,
+        &["input directory"],
+    );
+}
