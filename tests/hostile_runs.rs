@@ -186,3 +186,84 @@ fn outputs_never_overwrite_an_input_of_the_same_run() {
         &["input directory"],
     );
 }
+
+/// Drop the last ensemble of a unit file (keeping its old checksum, as an edit would).
+fn drop_one_ensemble(path: &Path) {
+    let mut v: serde_json::Value = serde_json::from_slice(&std::fs::read(path).unwrap()).unwrap();
+    v["body"]["ensembles"].as_array_mut().unwrap().pop();
+    std::fs::write(path, serde_json::to_vec(&v).unwrap()).unwrap();
+}
+
+/// Findings: deleting one entry of a checkpoint unit's ensembles, then rerunning, exited 0
+/// with 131 pairs instead of 132 (merge the same with a damaged shard unit); units of a
+/// seed-4 run copied into a seed-3 checkpoint were reused silently. Every such unit is now
+/// refused with exit status 1 and a message naming its file.
+#[test]
+fn damaged_and_foreign_units_are_refused_on_resume_and_merge() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    dataset(d, "data.csv", 4, 200);
+    // A finished whole-job shard is the checkpoint an interrupted scan leaves behind.
+    ok(
+        &with_small(&[
+            "scan", "data.csv", "--out", "cp", "--shard", "1/1", "--seed", "3",
+        ]),
+        d,
+    );
+    std::fs::create_dir(d.join("out")).unwrap();
+    std::fs::rename(d.join("cp"), d.join("out/.checkpoint")).unwrap();
+    drop_one_ensemble(&d.join("out/.checkpoint/unit-00002.json"));
+    refused(
+        &with_small(&["scan", "data.csv", "--out", "out", "--seed", "3"]),
+        d,
+        &["unit-00002.json", "content checksum"],
+    );
+    assert!(!d.join("out/run.json").exists());
+
+    // Units of seed 4 copied over the units of a seed-3 checkpoint.
+    ok(
+        &with_small(&[
+            "scan", "data.csv", "--out", "s4", "--shard", "1/1", "--seed", "4",
+        ]),
+        d,
+    );
+    for u in 0..4 {
+        let name = format!("unit-{u:05}.json");
+        std::fs::copy(
+            d.join("s4").join(&name),
+            d.join("out/.checkpoint").join(&name),
+        )
+        .unwrap();
+    }
+    refused(
+        &with_small(&["scan", "data.csv", "--out", "out", "--seed", "3"]),
+        d,
+        &["unit-00000.json", "other settings"],
+    );
+    assert!(!d.join("out/run.json").exists());
+
+    // A damaged unit in a shard directory given to merge.
+    ok(
+        &with_small(&["scan", "data.csv", "--out", "a", "--shard", "1/2"]),
+        d,
+    );
+    ok(
+        &with_small(&["scan", "data.csv", "--out", "b", "--shard", "2/2"]),
+        d,
+    );
+    drop_one_ensemble(&d.join("b/unit-00001.json"));
+    refused(
+        &["merge", "a", "b", "--out", "m", "--quiet"],
+        d,
+        &["b/unit-00001.json", "content checksum"],
+    );
+    assert!(!d.join("m/run.json").exists());
+    // A finished scan folder given as a shard: named as such, with no advice to delete it.
+    ok(&with_small(&["scan", "data.csv", "--out", "whole"]), d);
+    let err = refused(
+        &["merge", "a", "whole", "--out", "m", "--quiet"],
+        d,
+        &["whole", "finished scan", "scan --shard"],
+    );
+    assert!(!err.contains("delete"), "{err}");
+}

@@ -141,7 +141,7 @@ fn compute_units(
         .map(|&unit| {
             let ensembles =
                 triage_pipeline::cross_map_unit(&p.series, &p.embeddings, unit, &p.params);
-            store.save_unit(unit, &p.manifest.input, &ensembles)?;
+            store.save_unit(unit, &p.manifest, &ensembles)?;
             callback(finished.fetch_add(ensembles.len(), Ordering::Relaxed) + ensembles.len());
             Ok((unit, ensembles))
         })
