@@ -267,3 +267,96 @@ fn damaged_and_foreign_units_are_refused_on_resume_and_merge() {
     );
     assert!(!err.contains("delete"), "{err}");
 }
+
+/// Finding: two scans with different seeds into one folder, started together, gave one run
+/// exit 0 announcing its report while the folder held the other seed's results. Over 24
+/// trials of two real processes started together, exactly one run gets the folder, the
+/// other is refused at once naming the holder, and the folder holds the winner's results.
+#[test]
+fn two_runs_into_one_folder_never_mix() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    dataset(d, "data.csv", 6, 400);
+    // About 0.5-1 s of work each, far longer than the start-up skew of two spawns.
+    let flags = [
+        "--quiet",
+        "--replicates",
+        "100",
+        "--sizes",
+        "8",
+        "--surrogates",
+        "20",
+        "--dim",
+        "2",
+        "--delay",
+        "1",
+    ];
+    for trial in 0..24 {
+        let out = format!("o{trial}");
+        let spawn = |seed: &str| {
+            bin()
+                .args(["scan", "data.csv", "--out", &out, "--seed", seed])
+                .args(flags)
+                .current_dir(d)
+                .stdout(std::process::Stdio::piped())
+                .stderr(std::process::Stdio::piped())
+                .spawn()
+                .unwrap()
+        };
+        let (a, b) = (spawn("3"), spawn("4"));
+        let results = [
+            ("3", a.wait_with_output().unwrap()),
+            ("4", b.wait_with_output().unwrap()),
+        ];
+        let winners: Vec<&str> = results
+            .iter()
+            .filter(|(_, o)| o.status.success())
+            .map(|(s, _)| *s)
+            .collect();
+        assert_eq!(
+            winners.len(),
+            1,
+            "trial {trial}: {} runs succeeded",
+            winners.len()
+        );
+        for (_, o) in &results {
+            if !o.status.success() {
+                let err = String::from_utf8_lossy(&o.stderr);
+                assert_eq!(o.status.code(), Some(1), "trial {trial}: {err}");
+                assert!(
+                    err.contains("in use by another run (process"),
+                    "trial {trial}: {err}"
+                );
+            }
+        }
+        let run: serde_json::Value =
+            serde_json::from_slice(&std::fs::read(d.join(&out).join("run.json")).unwrap()).unwrap();
+        assert_eq!(
+            run["settings"]["seed"].to_string(),
+            winners[0],
+            "trial {trial}"
+        );
+    }
+}
+
+/// A lock record left by a run that died (its process gone, its lock released by the
+/// system) is taken over with a note on stderr.
+#[test]
+fn a_lock_left_by_a_dead_run_is_taken_over_with_a_note() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    dataset(d, "data.csv", 3, 150);
+    std::fs::create_dir(d.join("o")).unwrap();
+    std::fs::write(
+        d.join("o").join(series_io::LOCK_FILE),
+        "pid 4000000\nhost gone\nstarted 2026-01-01 00:00:00 UTC\n",
+    )
+    .unwrap();
+    let text = ok(&with_small(&["scan", "data.csv", "--out", "o"]), d);
+    assert!(
+        text.contains("was locked by process 4000000 on host gone")
+            && text.contains("takes it over"),
+        "{text}"
+    );
+    assert!(d.join("o/run.json").exists());
+}

@@ -9,7 +9,7 @@ use anyhow::{Context, bail};
 use crossmap_engine::{Embedding, PairEnsemble};
 use ensemble_features::Ensemble;
 use rayon::prelude::*;
-use series_io::{JsonDocument, OutputDir, ReadOptions, TextDocument};
+use series_io::{DirLock, JsonDocument, OutputDir, ReadOptions, TextDocument};
 use triage_pipeline::units::{self, InputIdentity, ShardSpec, StoreManifest, UnitStore};
 use triage_pipeline::{
     Judgement, PairRecord, QualityThresholds, RunFacts, SeriesSet, assemble_curves, judge,
@@ -160,7 +160,7 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
     let started = Instant::now();
     let policy = policy(&args.verdict)?;
     let model = model::load(args.verdict.model.as_deref())?;
-    let out = begin_output(
+    let (out, _lock) = begin_output(
         &args.out,
         &inputs(&[Some(&args.data), args.verdict.model.as_deref()]),
     )?;
@@ -209,6 +209,7 @@ fn run_shard(args: &ScanArgs, shard: ShardSpec, quiet: bool) -> anyhow::Result<(
         shard,
     )?;
     let store = UnitStore::open(&args.out)?;
+    let _lock = lock_folder(store.output())?;
     let units = compute_units(&store, &prepared, quiet)?;
     store.output().export(&tables::embedding(
         &prepared.series.names,
@@ -272,7 +273,7 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
     let mut read: Vec<&Path> = args.shards.iter().map(|d| d.as_path()).collect();
     read.push(&data);
     read.extend(args.verdict.model.as_deref());
-    let out = begin_output(&args.out, &read)?;
+    let (out, _lock) = begin_output(&args.out, &read)?;
     let ensembles = units::load_merge(&args.shards, &plan)?;
     let shards: Vec<String> = args
         .shards
@@ -299,13 +300,31 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
 ///
 /// `inputs` are the files and folders the run reads: no result file may replace one of them,
 /// which is checked here, before any work.
-fn begin_output(dir: &Path, inputs: &[&Path]) -> anyhow::Result<OutputDir> {
-    let out = OutputDir::create(dir)?.protect_inputs(inputs, RESULT_FILES)?;
+///
+/// The folder is locked first: a second run into it is refused at once, naming the run that
+/// holds it. The lock lives as long as the returned guard.
+fn begin_output(dir: &Path, inputs: &[&Path]) -> anyhow::Result<(OutputDir, DirLock)> {
+    let out = OutputDir::create(dir)?;
+    let lock = lock_folder(&out)?;
+    let out = out.protect_inputs(inputs, RESULT_FILES)?;
     let old = out.path().join("run.json");
     if old.exists() {
         std::fs::remove_file(&old).with_context(|| format!("cannot replace {}", old.display()))?;
     }
-    Ok(out)
+    Ok((out, lock))
+}
+
+/// Lock an output folder for this run; a lock left by a run that died is taken over with a
+/// note on stderr.
+fn lock_folder(out: &OutputDir) -> anyhow::Result<DirLock> {
+    let lock = DirLock::acquire(out.path())?;
+    if let Some(old) = lock.taken_over() {
+        eprintln!(
+            "note: {} was locked by {old}, which is no longer running; this run takes it over",
+            out.path().display()
+        );
+    }
+    Ok(lock)
 }
 
 /// Every file a labelling run may write into its output directory.
@@ -392,7 +411,9 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
     let model = model::load(args.verdict.model.as_deref())?;
     let (names, records) = curve_records(&args.curves)?;
     let judgements = judge(&records, &model.bundle, &policy)?;
-    let out = OutputDir::create(&args.out)?.protect_inputs(
+    let out = OutputDir::create(&args.out)?;
+    let _lock = lock_folder(&out)?;
+    let out = out.protect_inputs(
         &inputs(&[Some(&args.curves), args.verdict.model.as_deref()]),
         RESULT_FILES,
     )?;
@@ -431,7 +452,9 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
 
 pub fn features(args: FeaturesArgs) -> anyhow::Result<()> {
     let (names, records) = curve_records(&args.curves)?;
-    let out = OutputDir::create(&args.out)?.protect_inputs(&[&args.curves], &["features.csv"])?;
+    let out = OutputDir::create(&args.out)?;
+    let _lock = lock_folder(&out)?;
+    let out = out.protect_inputs(&[&args.curves], &["features.csv"])?;
     out.export(&tables::features(&names, &records))?;
     println!(
         "features of {} pairs written to {}",

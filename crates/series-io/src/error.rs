@@ -512,6 +512,19 @@ pub enum OutputError {
         input: PathBuf,
     },
 
+    /// Another run holds the output directory's lock.
+    #[error(
+        "{}: the folder is in use by another run ({holder}). Wait for it to finish, or \
+         choose another --out directory",
+        dir.display()
+    )]
+    Locked {
+        /// The directory.
+        dir: PathBuf,
+        /// Who holds it.
+        holder: String,
+    },
+
     /// The output directory is one of the run's input directories.
     #[error(
         "{}: the output directory is {}, an input directory of this run. Choose another --out \

@@ -32,6 +32,7 @@ mod error;
 #[doc(hidden)]
 pub mod fuzzing;
 mod guard;
+mod lock;
 mod output;
 mod records;
 mod table;
@@ -43,6 +44,7 @@ pub use curves::{
     write_curves,
 };
 pub use error::{InputError, OutputError};
+pub use lock::{DirLock, LOCK_FILE, LockHolder};
 pub use output::{
     CsvTable, Export, JsonDocument, OutputDir, TextDocument, format_f64, write_csv_rows,
 };
