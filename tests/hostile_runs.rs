@@ -360,3 +360,42 @@ fn a_lock_left_by_a_dead_run_is_taken_over_with_a_note() {
     );
     assert!(d.join("o/run.json").exists());
 }
+
+/// Findings: `--threads 100000` started 16,084 threads for a 0.1 s job; `--surrogates
+/// 100000` took 970 MB; `--period 1000` was accepted for 200 rows. Each is refused before
+/// any work, naming the cap (threads: 4 per core; surrogates: 999; period: a third of the
+/// record).
+#[test]
+fn thread_surrogate_and_period_caps_are_refused_with_their_limits() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    dataset(d, "data.csv", 4, 200);
+    let started = Instant::now();
+    refused(
+        &["--threads", "100000", "scan", "data.csv", "--out", "o"],
+        d,
+        &["--threads 100000 is above", "per core"],
+    );
+    assert!(started.elapsed().as_secs_f64() < 2.0);
+    refused(
+        &[
+            "scan",
+            "data.csv",
+            "--out",
+            "o",
+            "--surrogates",
+            "100000",
+            "--quiet",
+        ],
+        d,
+        &["100000 surrogates", "at most 999"],
+    );
+    refused(
+        &[
+            "scan", "data.csv", "--out", "o", "--period", "1000", "--quiet",
+        ],
+        d,
+        &["seasonal period 1000", "third of the 200-point record"],
+    );
+    assert!(!d.join("o/run.json").exists());
+}
