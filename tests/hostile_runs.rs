@@ -399,3 +399,59 @@ fn thread_surrogate_and_period_caps_are_refused_with_their_limits() {
     );
     assert!(!d.join("o/run.json").exists());
 }
+
+/// Finding: a 1.9 MB table of 10,000 columns x 20 rows started about 10^8 pairs without a
+/// word and reached 17.9 GB of memory and 35 GB of checkpoint. The work is estimated and
+/// printed first, and a run above the budget (100,000 pairs) is refused within seconds,
+/// naming the estimate and the ways out; the refusal runs under a 2 GB address-space limit.
+#[test]
+fn work_above_the_budget_is_refused_before_it_starts() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    let mut text = (0..10_000)
+        .map(|j| format!("c{j}"))
+        .collect::<Vec<_>>()
+        .join(",");
+    text.push('\n');
+    for t in 0..20 {
+        let row: Vec<String> = (0..10_000)
+            .map(|j| format!("{:.4}", ((t * 7919 + j * 104_729) % 1000) as f64 / 1000.0))
+            .collect();
+        text.push_str(&row.join(","));
+        text.push('\n');
+    }
+    std::fs::write(d.join("wide.csv"), text).unwrap();
+    let started = Instant::now();
+    let out = Command::new("sh")
+        .arg("-c")
+        .arg("ulimit -v 2000000 && exec \"$0\" \"$@\"")
+        .arg(assert_cmd::cargo::cargo_bin("ccm-triage"))
+        .args(["scan", "wide.csv", "--out", "o", "--quiet"])
+        .current_dir(d)
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{err}");
+    for word in [
+        "work: 10000 variables x 20 rows: 99990000 ordered pairs",
+        "above the budget",
+        "99990000 pairs > 100000",
+        "--shard I/N",
+        "--over-budget",
+    ] {
+        assert!(err.contains(word), "`{word}` not in {err}");
+    }
+    assert!(
+        started.elapsed().as_secs_f64() < 30.0,
+        "{:?}",
+        started.elapsed()
+    );
+    assert!(!d.join("o").exists(), "nothing is written before the budget check");
+    // A small scan prints its estimate and runs.
+    dataset(d, "data.csv", 3, 150);
+    let text = ok(&with_small(&["scan", "data.csv", "--out", "s"]), d);
+    assert!(
+        text.contains("work: 3 variables x 150 rows: 6 ordered pairs"),
+        "{text}"
+    );
+}

@@ -160,10 +160,6 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
     let started = Instant::now();
     let policy = policy(&args.verdict)?;
     let model = model::load(args.verdict.model.as_deref())?;
-    let (out, _lock) = begin_output(
-        &args.out,
-        &inputs(&[Some(&args.data), args.verdict.model.as_deref()]),
-    )?;
     let recorded = args.data.display().to_string();
     let prepared = prepare(
         &args.data,
@@ -171,6 +167,11 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
         args.time_column.as_deref(),
         &args.engine,
         ShardSpec::WHOLE,
+    )?;
+    check_budget(&prepared, &args.data, args.over_budget, true)?;
+    let (out, _lock) = begin_output(
+        &args.out,
+        &inputs(&[Some(&args.data), args.verdict.model.as_deref()]),
     )?;
     let store = UnitStore::open(out.path().join(CHECKPOINT_DIR))?;
     let units = compute_units(&store, &prepared, quiet)?;
@@ -208,6 +209,7 @@ fn run_shard(args: &ScanArgs, shard: ShardSpec, quiet: bool) -> anyhow::Result<(
         &args.engine,
         shard,
     )?;
+    check_budget(&prepared, &args.data, args.over_budget, true)?;
     let store = UnitStore::open(&args.out)?;
     let _lock = lock_folder(store.output())?;
     let units = compute_units(&store, &prepared, quiet)?;
@@ -273,6 +275,7 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
     let mut read: Vec<&Path> = args.shards.iter().map(|d| d.as_path()).collect();
     read.push(&data);
     read.extend(args.verdict.model.as_deref());
+    check_budget(&prepared, &data, args.over_budget, false)?;
     let (out, _lock) = begin_output(&args.out, &read)?;
     let ensembles = units::load_merge(&args.shards, &plan)?;
     let shards: Vec<String> = args
@@ -325,6 +328,66 @@ fn lock_folder(out: &OutputDir) -> anyhow::Result<DirLock> {
         );
     }
     Ok(lock)
+}
+
+/// Largest number of ordered pairs one process computes without `--over-budget`.
+pub const BUDGET_PAIRS: u64 = 100_000;
+/// Largest estimated peak memory without `--over-budget` (8 GiB).
+pub const BUDGET_MEMORY: f64 = 8.0 * 1024.0 * 1024.0 * 1024.0;
+/// Largest estimated checkpoint without `--over-budget` (4 GiB).
+pub const BUDGET_CHECKPOINT: f64 = 4.0 * 1024.0 * 1024.0 * 1024.0;
+
+/// Estimate this process's work, print it on stderr, and refuse it above the budget unless
+/// `over_budget`; `computes` is false for a merge, which reads the units instead.
+fn check_budget(
+    p: &Prepared,
+    data: &Path,
+    over_budget: bool,
+    computes: bool,
+) -> anyhow::Result<()> {
+    let threads = rayon::current_num_threads();
+    let units: &[usize] = &p.manifest.units;
+    let mut w = triage_pipeline::WorkEstimate::of_units(units, &p.embeddings, &p.params, threads);
+    if !computes {
+        let all: Vec<usize> = (0..p.series.names.len()).collect();
+        w = triage_pipeline::WorkEstimate::of_units(&all, &p.embeddings, &p.params, threads);
+        w.seconds = 0.0;
+        w.checkpoint = 0.0;
+    }
+    eprintln!(
+        "work: {} variables x {} rows: {w}",
+        p.series.names.len(),
+        p.table.n_rows()
+    );
+    let mut over = Vec::new();
+    if w.pairs > BUDGET_PAIRS {
+        over.push(format!("{} pairs > {BUDGET_PAIRS}", w.pairs));
+    }
+    if w.peak_memory > BUDGET_MEMORY {
+        over.push(format!(
+            "memory {} > {}",
+            triage_pipeline::estimate::bytes(w.peak_memory),
+            triage_pipeline::estimate::bytes(BUDGET_MEMORY)
+        ));
+    }
+    if w.checkpoint > BUDGET_CHECKPOINT {
+        over.push(format!(
+            "checkpoint {} > {}",
+            triage_pipeline::estimate::bytes(w.checkpoint),
+            triage_pipeline::estimate::bytes(BUDGET_CHECKPOINT)
+        ));
+    }
+    if over.is_empty() || over_budget {
+        return Ok(());
+    }
+    bail!(
+        "{}: the estimated work is above the budget of one process ({}). Ways out: analyse fewer \
+         variables (a table with only the columns of interest), fewer --replicates, --sizes or \
+         --surrogates, split the work into shards on a cluster (--shard I/N, each shard is \
+         budgeted alone; see scripts/slurm-array.sh), or pass --over-budget to run it anyway",
+        data.display(),
+        over.join(", ")
+    )
 }
 
 /// Every file a labelling run may write into its output directory.

@@ -14,6 +14,7 @@
 #![deny(missing_docs)]
 
 mod assemble;
+pub mod estimate;
 mod judge;
 mod quality;
 mod report_view;
@@ -21,6 +22,7 @@ mod training;
 pub mod units;
 
 pub use assemble::{PairRecord, assemble, assemble_curves, cycles};
+pub use estimate::WorkEstimate;
 pub use judge::{Judgement, judge, rule_of_thumb};
 pub use quality::{QualityThresholds, quality_flags};
 pub use report_view::{KEY_FEATURES, RunFacts, report_view};
