@@ -446,7 +446,10 @@ fn work_above_the_budget_is_refused_before_it_starts() {
         "{:?}",
         started.elapsed()
     );
-    assert!(!d.join("o").exists(), "nothing is written before the budget check");
+    assert!(
+        !d.join("o").exists(),
+        "nothing is written before the budget check"
+    );
     // A small scan prints its estimate and runs.
     dataset(d, "data.csv", 3, 150);
     let text = ok(&with_small(&["scan", "data.csv", "--out", "s"]), d);
@@ -454,4 +457,37 @@ fn work_above_the_budget_is_refused_before_it_starts() {
         text.contains("work: 3 variables x 150 rows: 6 ordered pairs"),
         "{text}"
     );
+}
+
+/// Finding: column names such as `=HYPERLINK(...)` and `+cmd|...` were written verbatim into
+/// the CSV outputs, where a spreadsheet would run them. Names that begin with `=`, `+`, `-`
+/// or `@` get a leading `'` in every CSV file (OWASP guidance on CSV injection, common
+/// practice); the curves file so written is read back by `label` unchanged.
+#[test]
+fn formula_like_names_are_neutralised_in_csv_outputs() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    let table = logistic_ring_csv(3, 150)
+        .replacen("v001", "\"=HYPERLINK(\"\"http://x\"\",\"\"y\"\")\"", 1)
+        .replacen("v002", "+cmd|' /C calc'!A0", 1)
+        .replacen("v003", "@SUM(A1)", 1);
+    std::fs::write(d.join("data.csv"), table).unwrap();
+    ok(&with_small(&["scan", "data.csv", "--out", "o"]), d);
+    for file in [
+        "curves.csv",
+        "labels.csv",
+        "features.csv",
+        "embedding.csv",
+        "lags.csv",
+    ] {
+        let text = std::fs::read_to_string(d.join("o").join(file)).unwrap();
+        for line in text.lines().skip(1) {
+            let first = line.trim_start_matches('"');
+            assert!(!first.starts_with(['=', '+', '-', '@']), "{file}: {line}");
+        }
+        assert!(text.contains("'+cmd|"), "{file}");
+    }
+    ok(&["label", "o/curves.csv", "--out", "l", "--quiet"], d);
+    let labels = std::fs::read_to_string(d.join("l/labels.csv")).unwrap();
+    assert!(labels.contains("'@SUM(A1)"), "{labels}");
 }

@@ -214,7 +214,7 @@ fn run_shard(args: &ScanArgs, shard: ShardSpec, quiet: bool) -> anyhow::Result<(
     let _lock = lock_folder(store.output())?;
     let units = compute_units(&store, &prepared, quiet)?;
     store.output().export(&tables::embedding(
-        &prepared.series.names,
+        &tables::spreadsheet_safe(&prepared.series.names),
         &prepared.embeddings,
     ))?;
     let mut manifest = prepared.manifest.clone();
@@ -518,7 +518,10 @@ pub fn features(args: FeaturesArgs) -> anyhow::Result<()> {
     let out = OutputDir::create(&args.out)?;
     let _lock = lock_folder(&out)?;
     let out = out.protect_inputs(&[&args.curves], &["features.csv"])?;
-    out.export(&tables::features(&names, &records))?;
+    out.export(&tables::features(
+        &tables::spreadsheet_safe(&names),
+        &records,
+    ))?;
     println!(
         "features of {} pairs written to {}",
         records.len(),
@@ -573,6 +576,10 @@ fn write_results(
     facts: &RunFacts,
     run: &serde_json::Value,
 ) -> anyhow::Result<()> {
+    // The CSV files carry spreadsheet-safe names; the report shows them as given.
+    let csv_names = tables::spreadsheet_safe(names);
+    let names_given = names;
+    let names = &csv_names[..];
     out.export(&tables::curves(names, records))?;
     if !embeddings.is_empty() {
         out.export(&tables::embedding(names, embeddings))?;
@@ -581,7 +588,7 @@ fn write_results(
     }
     out.export(&tables::features(names, records))?;
     out.export(&tables::labels(names, records, judgements))?;
-    let view = report_view(facts, names, embeddings, records, judgements);
+    let view = report_view(facts, names_given, embeddings, records, judgements);
     let html = review_report::render_html(&view)?;
     out.export(&TextDocument {
         name: "report.html".into(),
