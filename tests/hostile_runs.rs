@@ -491,3 +491,20 @@ fn formula_like_names_are_neutralised_in_csv_outputs() {
     let labels = std::fs::read_to_string(d.join("l/labels.csv")).unwrap();
     assert!(labels.contains("'@SUM(A1)"), "{labels}");
 }
+
+/// Finding: "library size 3 for variable 0" named the variable by its index. The refusal
+/// names it by its column name.
+#[test]
+fn parameter_refusals_name_the_variable() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    dataset(d, "data.csv", 3, 150);
+    let err = refused(
+        &[
+            "scan", "data.csv", "--out", "o", "--sizes", "3,20", "--dim", "2", "--quiet",
+        ],
+        d,
+        &["variable `v001`: library size 3 lies outside"],
+    );
+    assert!(!err.contains("variable 0"), "{err}");
+}

@@ -209,6 +209,14 @@ pub enum EngineError {
         /// Cap.
         max: usize,
     },
+    /// Values so large that squared distances between delay vectors overflow.
+    #[error(
+        "the series holds values up to {largest:e} in magnitude, so distances between its delay vectors overflow; rescale it (for example divide it by a power of ten) so that values stay below 1e150"
+    )]
+    ValuesTooLarge {
+        /// Largest magnitude found.
+        largest: f64,
+    },
     /// Two series of different lengths.
     #[error("series lengths differ ({expected} vs {found}); give series of equal length")]
     LengthMismatch {
