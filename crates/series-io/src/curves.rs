@@ -20,6 +20,10 @@ pub const CURVE_COLUMNS: [&str; 5] = ["driver", "response", "library_size", "rep
 /// Default limit on curves rows (20 million: 9,900 pairs x 12 sizes x 100 replicates fit).
 pub const DEFAULT_CURVES_MAX_ROWS: usize = 20_000_000;
 
+/// Most library sizes accepted per pair: the features downstream cost time growing with the
+/// square of the sizes (200,000 sizes took minutes), and scans use a dozen.
+pub const MAX_CURVE_LIBRARY_SIZES: usize = 1_000;
+
 /// Furthest a skill may lie outside [-1, 1] and still be taken as rounding in a correlation.
 const SKILL_SLACK: f64 = 1e-9;
 
@@ -353,6 +357,15 @@ fn group(
                     driver: driver.to_string(),
                     response: response.to_string(),
                     size: first_size,
+                });
+            }
+            if members.len() > MAX_CURVE_LIBRARY_SIZES {
+                return Err(InputError::TooManyLibrarySizes {
+                    file: file.to_string(),
+                    driver: driver.to_string(),
+                    response: response.to_string(),
+                    count: members.len(),
+                    max: MAX_CURVE_LIBRARY_SIZES,
                 });
             }
             if let Some((&size_b, other)) = sizes.find(|(_, m)| m.len() != first.len()) {

@@ -403,6 +403,26 @@ pub enum InputError {
         size: usize,
     },
 
+    /// A pair with more library sizes than the documented cap.
+    #[error(
+        "{file}: pair {driver} -> {response} has {count} library sizes, above the cap of {max}; \
+         the curve-shape features cost time growing with the square of the sizes, and a few \
+         dozen sizes show convergence. Keep at most {max} library sizes per pair (for example \
+         every k-th size)"
+    )]
+    TooManyLibrarySizes {
+        /// Input name.
+        file: String,
+        /// Driver name.
+        driver: String,
+        /// Response name.
+        response: String,
+        /// Library sizes found.
+        count: usize,
+        /// The cap.
+        max: usize,
+    },
+
     /// A pair whose library sizes carry different numbers of replicates.
     #[error(
         "{file}: pair {driver} -> {response}: library_size {size_a} has {count_a} replicates \
