@@ -164,7 +164,7 @@ fn read_rows(
     let mut csv = Records::new(reader, source_name, opts.max_line_bytes);
     let mut record = ByteRecord::new();
     if !csv.next(&mut record)? {
-        return Err(InputError::Empty { file });
+        return Err(InputError::CurvesEmpty { file });
     }
     let header = decode_header(&file, &record)?;
     let mut at = [0usize; 5];
@@ -250,7 +250,7 @@ fn read_rows(
         lines.push(row);
     }
     if rows.is_empty() {
-        return Err(InputError::HeaderOnly { file });
+        return Err(InputError::CurvesHeaderOnly { file });
     }
     Ok((rows, lines))
 }
@@ -409,6 +409,30 @@ mod tests {
 
     fn read(text: &str) -> Result<Vec<CurveRow>, InputError> {
         read_curves_from(text.as_bytes(), "curves.csv")
+    }
+
+    /// Findings: an empty curves file got the series-table hint ("one row per time point"),
+    /// and an unclosed quote was reported as missing fields.
+    #[test]
+    fn empty_and_unclosed_curves_files_get_curves_words() {
+        for (text, needle) in [
+            ("", "driver,response,library_size,replicate,skill"),
+            (
+                "driver,response,library_size,replicate,skill\n",
+                "library size and replicate",
+            ),
+        ] {
+            let msg = read(text).unwrap_err().to_string();
+            assert!(msg.contains(needle) && !msg.contains("time point"), "{msg}");
+        }
+        let msg =
+            read("driver,response,library_size,replicate,skill\na,b,10,1,\"0.5\na,b,20,1,0.6\n")
+                .unwrap_err()
+                .to_string();
+        assert!(
+            msg.contains("row 2") && msg.contains("never closed"),
+            "{msg}"
+        );
     }
 
     #[test]

@@ -44,6 +44,40 @@ pub enum InputError {
         file: String,
     },
 
+    /// A quote opens a field that is never closed: the rest of the file became one field.
+    #[error(
+        "{file}: row {row}: a field opens with a double quote (\") that is never closed, so the \
+         rest of the file was read as one field. Close the quote, or remove it if the field is \
+         not meant to be quoted"
+    )]
+    UnclosedQuote {
+        /// Input name.
+        file: String,
+        /// Row where the record with the open quote starts.
+        row: u64,
+    },
+
+    /// A curves file has no bytes, or only blank lines.
+    #[error(
+        "{file}: the curves file is empty (row 1 should be the header \
+         `driver,response,library_size,replicate,skill`). Write that header followed by one row \
+         per ensemble member: each library size of each pair, once per replicate"
+    )]
+    CurvesEmpty {
+        /// Input name.
+        file: String,
+    },
+
+    /// A curves file has a header but no rows.
+    #[error(
+        "{file}: only a header (row 1) was found and no ensemble rows follow it. Add one row per \
+         pair, library size and replicate below the header"
+    )]
+    CurvesHeaderOnly {
+        /// Input name.
+        file: String,
+    },
+
     /// A field contains bytes that are not valid UTF-8.
     #[error(
         "{file}: row {row}, column {column}: the text is not valid UTF-8 (the file was \
