@@ -175,6 +175,16 @@ fn outputs_never_overwrite_an_input_of_the_same_run() {
         d,
         &["an input of this run"],
     );
+    // A shard run whose input sits in its shard folder under an output's name.
+    std::fs::create_dir(d.join("sh")).unwrap();
+    dataset(&d.join("sh"), "embedding.csv", 3, 150);
+    let before = std::fs::read(d.join("sh/embedding.csv")).unwrap();
+    refused(
+        &with_small(&["scan", "sh/embedding.csv", "--out", "sh", "--shard", "1/2"]),
+        d,
+        &["an input of this run"],
+    );
+    assert_eq!(std::fs::read(d.join("sh/embedding.csv")).unwrap(), before);
     // A merge into one of its own shard directories.
     ok(
         &with_small(&["scan", "data.csv", "--out", "s1", "--shard", "1/1"]),

@@ -212,6 +212,10 @@ fn run_shard(args: &ScanArgs, shard: ShardSpec, quiet: bool) -> anyhow::Result<(
     check_budget(&prepared, &args.data, args.over_budget, true)?;
     let store = UnitStore::open(&args.out)?;
     let _lock = lock_folder(store.output())?;
+    let store = store.protect_inputs(
+        &inputs(&[Some(&args.data), args.verdict.model.as_deref()]),
+        &["embedding.csv"],
+    )?;
     let units = compute_units(&store, &prepared, quiet)?;
     store.output().export(&tables::embedding(
         &tables::spreadsheet_safe(&prepared.series.names),

@@ -392,6 +392,16 @@ impl UnitStore {
         Ok(Self { out })
     }
 
+    /// Refuse, now and at every later write, to replace any of `inputs` (the files the run
+    /// reads) with a file of the store; `names` are the extra files the caller will write.
+    pub fn protect_inputs(self, inputs: &[&Path], names: &[&str]) -> Result<Self, UnitsError> {
+        let mut all = vec![MANIFEST_FILE];
+        all.extend_from_slice(names);
+        Ok(Self {
+            out: self.out.protect_inputs(inputs, &all)?,
+        })
+    }
+
     /// The store's directory.
     pub fn path(&self) -> &Path {
         self.out.path()
