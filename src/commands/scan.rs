@@ -323,7 +323,7 @@ fn begin_output(dir: &Path, inputs: &[&Path]) -> anyhow::Result<(OutputDir, DirL
 
 /// Lock an output folder for this run; a lock left by a run that died is taken over with a
 /// note on stderr.
-fn lock_folder(out: &OutputDir) -> anyhow::Result<DirLock> {
+pub(crate) fn lock_folder(out: &OutputDir) -> anyhow::Result<DirLock> {
     let lock = DirLock::acquire(out.path())?;
     if let Some(old) = lock.taken_over() {
         eprintln!(
