@@ -561,3 +561,76 @@ fn curves_with_too_many_library_sizes_are_refused_at_once() {
         started.elapsed()
     );
 }
+
+/// Parse "peak memory about 12.3 MiB" from the work line into bytes.
+fn estimated_peak(stderr: &str) -> f64 {
+    let rest = stderr
+        .split("peak memory about ")
+        .nth(1)
+        .expect("estimate printed");
+    let mut words = rest.split_whitespace();
+    let value: f64 = words.next().unwrap().parse().unwrap();
+    let unit = words.next().unwrap().trim_end_matches(',');
+    let scale = match unit {
+        "KiB" => 1024.0,
+        "MiB" => 1024.0 * 1024.0,
+        "GiB" => 1024.0 * 1024.0 * 1024.0,
+        other => panic!("unit {other}"),
+    };
+    value * scale
+}
+
+/// The promise behind the budget: a legal run stays within 1.5 times its printed memory
+/// estimate. Peak resident memory is the kernel's high-water mark (`VmHWM` in
+/// /proc/PID/status, Linux proc(5)), read every 5 ms while the run lasts.
+#[test]
+fn peak_memory_stays_within_the_documented_factor_of_the_estimate() {
+    if !Path::new("/proc/self/status").exists() {
+        eprintln!("skipped: no /proc on this system");
+        return;
+    }
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    dataset(d, "data.csv", 12, 800);
+    let mut child = bin()
+        .args([
+            "scan",
+            "data.csv",
+            "--out",
+            "o",
+            "--quiet",
+            "--replicates",
+            "50",
+        ])
+        .current_dir(d)
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let status_path = format!("/proc/{}/status", child.id());
+    let mut peak_kib = 0u64;
+    while child.try_wait().unwrap().is_none() {
+        if let Ok(text) = std::fs::read_to_string(&status_path)
+            && let Some(line) = text.lines().find(|l| l.starts_with("VmHWM:"))
+        {
+            let kib: u64 = line.split_whitespace().nth(1).unwrap().parse().unwrap();
+            peak_kib = peak_kib.max(kib);
+        }
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    }
+    let out = child.wait_with_output().unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{err}");
+    let estimate = estimated_peak(&err);
+    let peak = peak_kib as f64 * 1024.0;
+    eprintln!(
+        "estimate {:.1} MiB, peak {:.1} MiB",
+        estimate / 1048576.0,
+        peak / 1048576.0
+    );
+    assert!(peak > 0.0, "no memory reading");
+    assert!(
+        peak <= 1.5 * estimate,
+        "peak {peak} > 1.5 x estimate {estimate}: {err}"
+    );
+}
