@@ -358,11 +358,21 @@ fn check_budget(
         w.seconds = 0.0;
         w.checkpoint = 0.0;
     }
-    eprintln!(
-        "work: {} variables x {} rows: {w}",
-        p.series.names.len(),
-        p.table.n_rows()
-    );
+    if computes {
+        eprintln!(
+            "work: {} variables x {} rows: {w}",
+            p.series.names.len(),
+            p.table.n_rows()
+        );
+    } else {
+        eprintln!(
+            "work: {} variables x {} rows: {} ordered pairs to merge, peak memory about {}",
+            p.series.names.len(),
+            p.table.n_rows(),
+            w.pairs,
+            triage_pipeline::estimate::bytes(w.peak_memory)
+        );
+    }
     let mut over = Vec::new();
     if w.pairs > BUDGET_PAIRS {
         over.push(format!("{} pairs > {BUDGET_PAIRS}", w.pairs));
