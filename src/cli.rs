@@ -135,6 +135,10 @@ pub struct ScanArgs {
     /// Response manifolds are dealt round-robin: shard I takes columns I, I+N, I+2N, ...
     #[arg(long, value_name = "I/N")]
     pub shard: Option<String>,
+    /// Run even when the estimated work is above the budget of one process (100,000 pairs,
+    /// 8 GiB of memory or 4 GiB of checkpoint).
+    #[arg(long)]
+    pub over_budget: bool,
     #[command(flatten)]
     pub engine: EngineArgs,
     #[command(flatten)]
@@ -154,6 +158,9 @@ pub struct MergeArgs {
     /// checksum must match).
     #[arg(long, value_name = "PATH")]
     pub data: Option<PathBuf>,
+    /// Merge even when the estimated memory is above the budget of one process.
+    #[arg(long)]
+    pub over_budget: bool,
     #[command(flatten)]
     pub verdict: VerdictArgs,
 }

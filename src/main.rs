@@ -27,9 +27,21 @@ fn main() -> ExitCode {
     }
 }
 
+/// Largest number of worker threads per core accepted by `--threads`.
+const THREADS_PER_CORE: usize = 4;
+
 fn run(cli: cli::Cli) -> anyhow::Result<()> {
     if let Some(threads) = cli.threads {
         anyhow::ensure!(threads >= 1, "--threads must be at least 1");
+        // More workers than a small multiple of the cores only adds switching and memory
+        // (each worker holds its own scratch tables); results never depend on the count.
+        let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+        let cap = THREADS_PER_CORE * cores;
+        anyhow::ensure!(
+            threads <= cap,
+            "--threads {threads} is above {cap} ({THREADS_PER_CORE} per core on this machine's {cores} cores); \
+             give at most {cap}, or leave it unset to use one per core"
+        );
         rayon::ThreadPoolBuilder::new()
             .num_threads(threads)
             .build_global()?;

@@ -135,7 +135,7 @@ fn merge_refuses_shards_that_do_not_belong_together() {
     let (code, _, err) = run(&["merge", "s1", "s2", "other", "--out", "m"], d);
     assert_eq!(code, 1);
     assert!(
-        err.contains("other: the analysis settings differs"),
+        err.contains("other: the analysis settings differ (seed: 9 in the files, 1 here)"),
         "{err}"
     );
 
@@ -149,7 +149,7 @@ fn merge_refuses_shards_that_do_not_belong_together() {
     assert_eq!(code, 1);
     assert!(err.contains("input checksum"), "{err}");
 
-    // An unfinished shard (killed before its manifest was marked complete).
+    // A manifest edited by hand is refused as damaged, naming the file.
     let manifest = d.join("s3/manifest.json");
     let text = std::fs::read_to_string(&manifest).unwrap();
     std::fs::write(
@@ -157,6 +157,20 @@ fn merge_refuses_shards_that_do_not_belong_together() {
         text.replace("\"complete\": true", "\"complete\": false"),
     )
     .unwrap();
+    let (code, _, err) = run(&["merge", "s1", "s2", "s3", "--out", "m"], d);
+    assert_eq!(code, 1);
+    assert!(
+        err.contains("s3/manifest.json") && err.contains("content checksum"),
+        "{err}"
+    );
+    // An unfinished shard (killed before its manifest was marked complete), as the tool
+    // itself writes it.
+    let store = triage_pipeline::units::UnitStore::open(d.join("s3")).unwrap();
+    let mut m = triage_pipeline::units::read_manifest(&d.join("s2/manifest.json")).unwrap();
+    m.shard.index = 3;
+    m.units = m.shard.units(m.input.variables.len());
+    m.complete = false;
+    store.write_manifest(&m).unwrap();
     let (code, _, err) = run(&["merge", "s1", "s2", "s3", "--out", "m"], d);
     assert_eq!(code, 1);
     assert!(err.contains("shard 3/3 is incomplete"), "{err}");
@@ -259,7 +273,10 @@ fn checkpoint_of_other_settings_is_refused() {
     let (code, _, err) = run(&with_small(&["scan", "data.csv", "--out", "out"]), d);
     assert_eq!(code, 1);
     assert!(err.contains("cannot resume from out/.checkpoint"), "{err}");
-    assert!(err.contains("analysis settings differs"), "{err}");
+    assert!(
+        err.contains("analysis settings differ (seed: 2 in the files, 1 here)"),
+        "{err}"
+    );
     assert!(!d.join("out/run.json").exists());
     // Same seed as the planted units: they are reused and the result equals a fresh run.
     ok(

@@ -19,6 +19,7 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
         out: args.out.join("scan"),
         time_column: None,
         shard: None,
+        over_budget: false,
         engine: default_engine(),
         verdict: VerdictArgs {
             model: None,

@@ -36,19 +36,26 @@ impl LoadedModel {
 /// Load `path`, or the built-in model when `None`; the model must match this build's features.
 pub fn load(path: Option<&Path>) -> anyhow::Result<LoadedModel> {
     let schema = ensemble_features::schema_hash();
-    let (bytes, source) = match path {
-        Some(p) => (
-            std::fs::read(p).with_context(|| format!("cannot read model file {}", p.display()))?,
-            p.display().to_string(),
-        ),
-        None => (BUILT_IN.to_vec(), "built-in model".to_string()),
+    let source = match path {
+        Some(p) => p.display().to_string(),
+        None => "built-in model".to_string(),
     };
-    let bundle = ModelBundle::from_bytes_expecting(&bytes, &schema).with_context(|| {
+    let context = || {
         format!(
             "model {source} cannot be used; train one with `ccm-triage train SPEC.toml --out DIR` \
              or omit --model to use the built-in model"
         )
-    })?;
+    };
+    // A file's type and size are checked before it is read (a device or a huge file is
+    // refused at once); the bundle is checked against its own sizes on decoding.
+    let (bundle, bytes) = match path {
+        Some(p) => verdict_model::model_file::read_model_file(p).with_context(context)?,
+        None => (
+            ModelBundle::from_bytes(BUILT_IN).with_context(context)?,
+            BUILT_IN.to_vec(),
+        ),
+    };
+    bundle.check_schema(&schema).with_context(context)?;
     Ok(LoadedModel {
         bundle,
         source,

@@ -9,7 +9,7 @@ use anyhow::{Context, bail};
 use crossmap_engine::{Embedding, PairEnsemble};
 use ensemble_features::Ensemble;
 use rayon::prelude::*;
-use series_io::{JsonDocument, OutputDir, ReadOptions, TextDocument};
+use series_io::{DirLock, JsonDocument, OutputDir, ReadOptions, TextDocument};
 use triage_pipeline::units::{self, InputIdentity, ShardSpec, StoreManifest, UnitStore};
 use triage_pipeline::{
     Judgement, PairRecord, QualityThresholds, RunFacts, SeriesSet, assemble_curves, judge,
@@ -141,7 +141,7 @@ fn compute_units(
         .map(|&unit| {
             let ensembles =
                 triage_pipeline::cross_map_unit(&p.series, &p.embeddings, unit, &p.params);
-            store.save_unit(unit, &p.manifest.input, &ensembles)?;
+            store.save_unit(unit, &p.manifest, &ensembles)?;
             callback(finished.fetch_add(ensembles.len(), Ordering::Relaxed) + ensembles.len());
             Ok((unit, ensembles))
         })
@@ -168,7 +168,11 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
         &args.engine,
         ShardSpec::WHOLE,
     )?;
-    let out = begin_output(&args.out)?;
+    check_budget(&prepared, &args.data, args.over_budget, true)?;
+    let (out, _lock) = begin_output(
+        &args.out,
+        &inputs(&[Some(&args.data), args.verdict.model.as_deref()]),
+    )?;
     let store = UnitStore::open(out.path().join(CHECKPOINT_DIR))?;
     let units = compute_units(&store, &prepared, quiet)?;
     let ensembles: Vec<PairEnsemble> = units.into_values().flatten().collect();
@@ -205,10 +209,16 @@ fn run_shard(args: &ScanArgs, shard: ShardSpec, quiet: bool) -> anyhow::Result<(
         &args.engine,
         shard,
     )?;
+    check_budget(&prepared, &args.data, args.over_budget, true)?;
     let store = UnitStore::open(&args.out)?;
+    let _lock = lock_folder(store.output())?;
+    let store = store.protect_inputs(
+        &inputs(&[Some(&args.data), args.verdict.model.as_deref()]),
+        &["embedding.csv"],
+    )?;
     let units = compute_units(&store, &prepared, quiet)?;
     store.output().export(&tables::embedding(
-        &prepared.series.names,
+        &tables::spreadsheet_safe(&prepared.series.names),
         &prepared.embeddings,
     ))?;
     let mut manifest = prepared.manifest.clone();
@@ -266,8 +276,12 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         "the settings resolved from {} differ from the shards' ones; rerun the shards with this version",
         data.display()
     );
+    let mut read: Vec<&Path> = args.shards.iter().map(|d| d.as_path()).collect();
+    read.push(&data);
+    read.extend(args.verdict.model.as_deref());
+    check_budget(&prepared, &data, args.over_budget, false)?;
+    let (out, _lock) = begin_output(&args.out, &read)?;
     let ensembles = units::load_merge(&args.shards, &plan)?;
-    let out = begin_output(&args.out)?;
     let shards: Vec<String> = args
         .shards
         .iter()
@@ -290,13 +304,121 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
 
 /// The output directory, without a run.json from an earlier run: until this run writes its
 /// own run.json last, nothing in the folder looks complete.
-fn begin_output(dir: &Path) -> anyhow::Result<OutputDir> {
+///
+/// `inputs` are the files and folders the run reads: no result file may replace one of them,
+/// which is checked here, before any work.
+///
+/// The folder is locked first: a second run into it is refused at once, naming the run that
+/// holds it. The lock lives as long as the returned guard.
+fn begin_output(dir: &Path, inputs: &[&Path]) -> anyhow::Result<(OutputDir, DirLock)> {
     let out = OutputDir::create(dir)?;
+    let lock = lock_folder(&out)?;
+    let out = out.protect_inputs(inputs, RESULT_FILES)?;
     let old = out.path().join("run.json");
     if old.exists() {
         std::fs::remove_file(&old).with_context(|| format!("cannot replace {}", old.display()))?;
     }
-    Ok(out)
+    Ok((out, lock))
+}
+
+/// Lock an output folder for this run; a lock left by a run that died is taken over with a
+/// note on stderr.
+pub(crate) fn lock_folder(out: &OutputDir) -> anyhow::Result<DirLock> {
+    let lock = DirLock::acquire(out.path())?;
+    if let Some(old) = lock.taken_over() {
+        eprintln!(
+            "note: {} was locked by {old}, which is no longer running; this run takes it over",
+            out.path().display()
+        );
+    }
+    Ok(lock)
+}
+
+/// Largest number of ordered pairs one process computes without `--over-budget`.
+pub const BUDGET_PAIRS: u64 = 100_000;
+/// Largest estimated peak memory without `--over-budget` (8 GiB).
+pub const BUDGET_MEMORY: f64 = 8.0 * 1024.0 * 1024.0 * 1024.0;
+/// Largest estimated checkpoint without `--over-budget` (4 GiB).
+pub const BUDGET_CHECKPOINT: f64 = 4.0 * 1024.0 * 1024.0 * 1024.0;
+
+/// Estimate this process's work, print it on stderr, and refuse it above the budget unless
+/// `over_budget`; `computes` is false for a merge, which reads the units instead.
+fn check_budget(
+    p: &Prepared,
+    data: &Path,
+    over_budget: bool,
+    computes: bool,
+) -> anyhow::Result<()> {
+    let threads = rayon::current_num_threads();
+    let units: &[usize] = &p.manifest.units;
+    let mut w = triage_pipeline::WorkEstimate::of_units(units, &p.embeddings, &p.params, threads);
+    if !computes {
+        let all: Vec<usize> = (0..p.series.names.len()).collect();
+        w = triage_pipeline::WorkEstimate::of_units(&all, &p.embeddings, &p.params, threads);
+        w.seconds = 0.0;
+        w.checkpoint = 0.0;
+    }
+    if computes {
+        eprintln!(
+            "work: {} variables x {} rows: {w}",
+            p.series.names.len(),
+            p.table.n_rows()
+        );
+    } else {
+        eprintln!(
+            "work: {} variables x {} rows: {} ordered pairs to merge, peak memory about {}",
+            p.series.names.len(),
+            p.table.n_rows(),
+            w.pairs,
+            triage_pipeline::estimate::bytes(w.peak_memory)
+        );
+    }
+    let mut over = Vec::new();
+    if w.pairs > BUDGET_PAIRS {
+        over.push(format!("{} pairs > {BUDGET_PAIRS}", w.pairs));
+    }
+    if w.peak_memory > BUDGET_MEMORY {
+        over.push(format!(
+            "memory {} > {}",
+            triage_pipeline::estimate::bytes(w.peak_memory),
+            triage_pipeline::estimate::bytes(BUDGET_MEMORY)
+        ));
+    }
+    if w.checkpoint > BUDGET_CHECKPOINT {
+        over.push(format!(
+            "checkpoint {} > {}",
+            triage_pipeline::estimate::bytes(w.checkpoint),
+            triage_pipeline::estimate::bytes(BUDGET_CHECKPOINT)
+        ));
+    }
+    if over.is_empty() || over_budget {
+        return Ok(());
+    }
+    bail!(
+        "{}: the estimated work is above the budget of one process ({}). Ways out: analyse fewer \
+         variables (a table with only the columns of interest), fewer --replicates, --sizes or \
+         --surrogates, split the work into shards on a cluster (--shard I/N, each shard is \
+         budgeted alone; see scripts/slurm-array.sh), or pass --over-budget to run it anyway",
+        data.display(),
+        over.join(", ")
+    )
+}
+
+/// Every file a labelling run may write into its output directory.
+const RESULT_FILES: &[&str] = &[
+    "curves.csv",
+    "embedding.csv",
+    "lags.csv",
+    "surrogates.csv",
+    "features.csv",
+    "labels.csv",
+    "report.html",
+    "run.json",
+];
+
+/// The paths given, without the absent ones.
+fn inputs<'a>(paths: &[Option<&'a Path>]) -> Vec<&'a Path> {
+    paths.iter().flatten().copied().collect()
 }
 
 /// Stages 3 and 4 (assemble, judge) and every result file, the same for scan and merge.
@@ -368,6 +490,11 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
     let (names, records) = curve_records(&args.curves)?;
     let judgements = judge(&records, &model.bundle, &policy)?;
     let out = OutputDir::create(&args.out)?;
+    let _lock = lock_folder(&out)?;
+    let out = out.protect_inputs(
+        &inputs(&[Some(&args.curves), args.verdict.model.as_deref()]),
+        RESULT_FILES,
+    )?;
     let sha = series_io::checksum::sha256_file(&args.curves)
         .with_context(|| format!("cannot read {}", args.curves.display()))?;
     let run = serde_json::json!({
@@ -404,7 +531,12 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
 pub fn features(args: FeaturesArgs) -> anyhow::Result<()> {
     let (names, records) = curve_records(&args.curves)?;
     let out = OutputDir::create(&args.out)?;
-    out.export(&tables::features(&names, &records))?;
+    let _lock = lock_folder(&out)?;
+    let out = out.protect_inputs(&[&args.curves], &["features.csv"])?;
+    out.export(&tables::features(
+        &tables::spreadsheet_safe(&names),
+        &records,
+    ))?;
     println!(
         "features of {} pairs written to {}",
         records.len(),
@@ -459,6 +591,10 @@ fn write_results(
     facts: &RunFacts,
     run: &serde_json::Value,
 ) -> anyhow::Result<()> {
+    // The CSV files carry spreadsheet-safe names; the report shows them as given.
+    let csv_names = tables::spreadsheet_safe(names);
+    let names_given = names;
+    let names = &csv_names[..];
     out.export(&tables::curves(names, records))?;
     if !embeddings.is_empty() {
         out.export(&tables::embedding(names, embeddings))?;
@@ -467,7 +603,7 @@ fn write_results(
     }
     out.export(&tables::features(names, records))?;
     out.export(&tables::labels(names, records, judgements))?;
-    let view = report_view(facts, names, embeddings, records, judgements);
+    let view = report_view(facts, names_given, embeddings, records, judgements);
     let html = review_report::render_html(&view)?;
     out.export(&TextDocument {
         name: "report.html".into(),

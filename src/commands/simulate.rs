@@ -52,6 +52,8 @@ pub fn simulate(args: SimulateArgs, quiet: bool) -> anyhow::Result<()> {
     let (spec, _) = read_spec(&args.spec)?;
     let systems = simulate_spec(&spec, quiet)?;
     let out = OutputDir::create(&args.out)?;
+    let _lock = super::scan::lock_folder(&out)?;
+    let out = out.protect_inputs(&[&args.spec], &[])?;
     for s in &systems {
         out.write_bytes(&format!("{}.csv", s.id), s.to_csv_string().as_bytes())?;
     }
@@ -86,6 +88,8 @@ pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
     let (spec, identity) = read_spec(&args.spec)?;
     let settings = config::analysis_settings(&args.engine)?;
     let out = OutputDir::create(&args.out)?;
+    let _lock = super::scan::lock_folder(&out)?;
+    let out = out.protect_inputs(&[&args.spec], &[])?;
     let (systems, skipped) = analysed(&spec, &settings, quiet)?;
     let set = triage_pipeline::training_set(&systems);
     anyhow::ensure!(

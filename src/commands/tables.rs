@@ -4,6 +4,22 @@ use crossmap_engine::Embedding;
 use series_io::{CsvTable, Export, format_f64, write_csv_rows};
 use triage_pipeline::{Judgement, PairRecord};
 
+/// Names as written into CSV files: a name that begins with `=`, `+`, `-`, `@`, a tab or a
+/// carriage return gets a leading `'`, so a spreadsheet shows it as text instead of running
+/// it as a formula (the OWASP guidance on CSV injection). Other names are unchanged.
+pub fn spreadsheet_safe(names: &[String]) -> Vec<String> {
+    names
+        .iter()
+        .map(|n| {
+            if n.starts_with(['=', '+', '-', '@', '\t', '\r']) {
+                format!("'{n}")
+            } else {
+                n.clone()
+            }
+        })
+        .collect()
+}
+
 fn opt(v: Option<f64>) -> String {
     v.map(format_f64).unwrap_or_default()
 }
@@ -213,5 +229,33 @@ fn table(name: &str, header: &[&str], rows: Vec<Vec<String>>) -> CsvTable {
         name: name.into(),
         header: header.iter().map(|h| h.to_string()).collect(),
         rows,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn formula_like_names_are_neutralised() {
+        // Leading characters from the OWASP "CSV Injection" page (common practice).
+        let names: Vec<String> = [
+            "=HYPERLINK(\"x\")",
+            "+cmd|' /C calc'!A0",
+            "-2+3",
+            "@SUM(A1)",
+            "\tx",
+            "ok",
+            "a=b",
+        ]
+        .map(String::from)
+        .to_vec();
+        let safe = spreadsheet_safe(&names);
+        assert_eq!(safe[0], "'=HYPERLINK(\"x\")");
+        assert_eq!(safe[1], "'+cmd|' /C calc'!A0");
+        assert_eq!(safe[2], "'-2+3");
+        assert_eq!(safe[3], "'@SUM(A1)");
+        assert_eq!(safe[4], "'\tx");
+        assert_eq!(&safe[5..], ["ok", "a=b"]);
     }
 }

@@ -21,6 +21,13 @@ pub const MIN_AUTO_E: usize = 2;
 
 /// Upper bound on the automatically chosen delay, in time steps.
 pub const MAX_AUTO_TAU: usize = 50;
+/// Longest stretch of a series whose simplex forecasts choose E and give the self-forecast
+/// skill: the first this many points. A forecast's cost grows faster than linearly with the
+/// points it searches, so a bounded window keeps the embedding step about linear in the rows
+/// (series up to this length are forecast whole, exactly as before).
+pub const FORECAST_WINDOW: usize = 10_000;
+/// Largest magnitude of a value whose delay vectors' squared distances stay finite.
+pub const MAX_MAGNITUDE: f64 = 1e150;
 
 /// How to choose each variable's embedding.
 #[derive(Debug, Clone, PartialEq)]
@@ -250,6 +257,15 @@ pub fn choose_embedding(x: &[f64], settings: &EmbeddingSettings) -> Result<Embed
     if settings.max_e == 0 && settings.e.is_none() {
         return Err(EngineError::MaxDimensionZero);
     }
+    // Squared distances of values beyond 1e150 overflow to infinity, which would make every
+    // forecast skill NaN and the series look constant.
+    let largest = x
+        .iter()
+        .filter(|v| v.is_finite())
+        .fold(0.0_f64, |m, v| m.max(v.abs()));
+    if largest > MAX_MAGNITUDE {
+        return Err(EngineError::ValuesTooLarge { largest });
+    }
     let max_e = settings.max_e.max(settings.e.unwrap_or(0));
     let tau = settings
         .tau
@@ -260,11 +276,12 @@ pub fn choose_embedding(x: &[f64], settings: &EmbeddingSettings) -> Result<Embed
     };
     let mut skill_by_e = vec![f64::NAN; max_e];
     let mut first_err = None;
+    let window = &x[..x.len().min(FORECAST_WINDOW)];
     let results: Vec<_> = candidates
         .par_iter()
         .map(|&e| {
             simplex_forecast(
-                x,
+                window,
                 e,
                 tau,
                 1,
@@ -361,5 +378,52 @@ mod tests {
             choose_embedding(&x, &s),
             Err(EngineError::DelayZero)
         ));
+    }
+
+    /// Finding: a 2.3 M-row file with E and tau given still forecast the whole series, in
+    /// time growing faster than linearly. The forecast now reads the first
+    /// [`FORECAST_WINDOW`] points: a longer series gets exactly the skill of that window.
+    #[test]
+    fn long_series_are_forecast_on_a_bounded_window() {
+        // Logistic map at r = 3.9 (May 1976), a chaotic series with a clear one-step forecast.
+        let mut v = 0.3;
+        let x: Vec<f64> = (0..3 * FORECAST_WINDOW)
+            .map(|_| {
+                v = 3.9 * v * (1.0 - v);
+                v
+            })
+            .collect();
+        let fixed = EmbeddingSettings {
+            e: Some(2),
+            tau: Some(1),
+            max_e: 10,
+            theiler: None,
+        };
+        let long = choose_embedding(&x, &fixed).unwrap();
+        let window = choose_embedding(&x[..FORECAST_WINDOW], &fixed).unwrap();
+        assert_eq!(long.simplex_skill.to_bits(), window.simplex_skill.to_bits());
+        assert!(long.simplex_skill > 0.9, "{}", long.simplex_skill);
+    }
+
+    /// Finding: a series of +-1.7e308 was called "constant?". Its refusal now says that the
+    /// values overflow and how to rescale them.
+    #[test]
+    fn huge_values_are_named_not_called_constant() {
+        let x: Vec<f64> = (0..200)
+            .map(|i| {
+                if i % 3 == 0 {
+                    1.7e308
+                } else {
+                    -1.7e308 * (i % 7) as f64 / 7.0
+                }
+            })
+            .collect();
+        let err = choose_embedding(&x, &EmbeddingSettings::default()).unwrap_err();
+        let text = err.to_string();
+        assert!(matches!(err, EngineError::ValuesTooLarge { .. }), "{text}");
+        assert!(
+            text.contains("1.7e308") && !text.contains("constant"),
+            "{text}"
+        );
     }
 }

@@ -177,6 +177,46 @@ pub enum EngineError {
         /// Requested period.
         period: usize,
     },
+    /// A seasonal period longer than a third of the record.
+    #[error(
+        "seasonal period {period} is longer than a third of the {n_points}-point record (at most {max}); at least three cycles are needed to estimate a mean cycle: give a shorter period or leave it unset"
+    )]
+    PeriodTooLong {
+        /// Requested period.
+        period: usize,
+        /// Largest allowed.
+        max: usize,
+        /// Points in the record.
+        n_points: usize,
+    },
+    /// More surrogates per kind than the documented cap.
+    #[error(
+        "{found} surrogates of each kind per pair is above the cap of {max} (enough for a surrogate rank at the 0.001 level); give at most {max}"
+    )]
+    TooManySurrogates {
+        /// Requested.
+        found: usize,
+        /// Cap.
+        max: usize,
+    },
+    /// More replicate libraries per size than the documented cap.
+    #[error(
+        "{found} replicates per library size is above the cap of {max}; the spread of skill is well estimated long before that: give at most {max}"
+    )]
+    TooManyReplicates {
+        /// Requested.
+        found: usize,
+        /// Cap.
+        max: usize,
+    },
+    /// Values so large that squared distances between delay vectors overflow.
+    #[error(
+        "the series holds values up to {largest:e} in magnitude, so distances between its delay vectors overflow; rescale it (for example divide it by a power of ten) so that values stay below 1e150"
+    )]
+    ValuesTooLarge {
+        /// Largest magnitude found.
+        largest: f64,
+    },
     /// Two series of different lengths.
     #[error("series lengths differ ({expected} vs {found}); give series of equal length")]
     LengthMismatch {

@@ -9,6 +9,11 @@ pub const DEFAULT_LIBRARY_COUNT: usize = 12;
 pub const DEFAULT_REPLICATES: usize = 100;
 /// Upper bound on the automatic largest cross-map lag.
 pub const MAX_AUTO_LAG: usize = 20;
+/// Largest number of surrogate drivers of each kind per pair: 999 give a surrogate rank
+/// resolved to 0.001, and each costs one extra target on every largest-size table.
+pub const MAX_SURROGATES: usize = 999;
+/// Largest number of random libraries per size.
+pub const MAX_REPLICATES: usize = 1000;
 
 /// Library sizes: automatic (log-spaced from E+2 to the usable length) or explicit.
 #[derive(Debug, Clone, PartialEq)]
@@ -134,6 +139,18 @@ impl CrossMapParams {
         if self.replicates == 0 {
             return Err(EngineError::ReplicatesZero);
         }
+        if self.replicates > MAX_REPLICATES {
+            return Err(EngineError::TooManyReplicates {
+                found: self.replicates,
+                max: MAX_REPLICATES,
+            });
+        }
+        if self.surrogates > MAX_SURROGATES {
+            return Err(EngineError::TooManySurrogates {
+                found: self.surrogates,
+                max: MAX_SURROGATES,
+            });
+        }
         match &self.library_sizes {
             LibrarySizes::Auto { count: 0 } => return Err(EngineError::LibraryCountZero),
             LibrarySizes::Explicit(v) if v.is_empty() => return Err(EngineError::LibraryCountZero),
@@ -148,6 +165,15 @@ impl CrossMapParams {
             && p < 2
         {
             return Err(EngineError::PeriodTooShort { period: p });
+        }
+        if let Some(p) = self.period
+            && p > n_points / 3
+        {
+            return Err(EngineError::PeriodTooLong {
+                period: p,
+                max: n_points / 3,
+                n_points,
+            });
         }
         let mut plans = Vec::with_capacity(embeddings.len());
         for (i, emb) in embeddings.iter().enumerate() {
@@ -318,5 +344,53 @@ mod tests {
         assert!(matches!(err, EngineError::LagTooLarge { .. }));
         let err = p.validate(100, &e2[..1]).unwrap_err();
         assert!(matches!(err, EngineError::TooFewSeries { found: 1 }));
+    }
+
+    /// Findings: `--surrogates 100000` on a 200 x 4 table took 970 MB and `--period 1000`
+    /// was accepted for 200 rows. The caps hold at their documented values.
+    #[test]
+    fn surrogates_replicates_and_period_are_capped() {
+        let embeddings = vec![emb(2, 1), emb(2, 1)];
+        let base = CrossMapParams::default();
+        assert!(base.clone().validate(200, &embeddings).is_ok());
+        let err = base
+            .clone()
+            .with_surrogates(100_000, None)
+            .validate(200, &embeddings)
+            .unwrap_err();
+        assert!(
+            matches!(err, EngineError::TooManySurrogates { max: 999, .. }),
+            "{err}"
+        );
+        assert!(
+            base.clone()
+                .with_surrogates(999, None)
+                .validate(200, &embeddings)
+                .is_ok()
+        );
+        let err = base
+            .clone()
+            .with_replicates(1001)
+            .validate(200, &embeddings)
+            .unwrap_err();
+        assert!(
+            matches!(err, EngineError::TooManyReplicates { .. }),
+            "{err}"
+        );
+        let err = base
+            .clone()
+            .with_surrogates(5, Some(1000))
+            .validate(200, &embeddings)
+            .unwrap_err();
+        assert!(
+            err.to_string()
+                .contains("third of the 200-point record (at most 66)"),
+            "{err}"
+        );
+        assert!(
+            base.with_surrogates(5, Some(66))
+                .validate(200, &embeddings)
+                .is_ok()
+        );
     }
 }

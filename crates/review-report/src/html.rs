@@ -234,6 +234,76 @@ fn summary(
         }
     }
 
+    if n > MATRIX_MAX_VARIABLES {
+        heat_map(out, data, rank);
+    } else {
+        matrix(out, data, cells, rank);
+    }
+    summary_tail(out, data);
+}
+
+/// Above this many variables the verdict matrix (which grows with the square of the
+/// variables, assessed or not) gives way to a heat map drawn only for the assessed pairs.
+pub const MATRIX_MAX_VARIABLES: usize = 60;
+
+/// The probability heat map of a large run: one small square per assessed pair at (driver
+/// row, response column), coloured by the probability; its size grows with the pairs only.
+fn heat_map(out: &mut String, data: &ReportData, rank: &[usize]) {
+    let n = data.variables.len();
+    let index: BTreeMap<&str, usize> = data
+        .variables
+        .iter()
+        .enumerate()
+        .map(|(k, v)| (v.as_str(), k))
+        .collect();
+    // The drawing is 720 units wide whatever the count; cells shrink as variables grow.
+    let cell = 720.0 / n as f64;
+    put!(
+        out,
+        "<figure id=\"heat-map\" class=\"heat\">\n<figcaption>{n} variables are too many for a \
+         verdict matrix. Each square is one assessed pair, at the row of its driver and the \
+         column of its response (variables in the order of the input), coloured by the \
+         probability that the driver drives the response, from blue (0) to red (1). Pairs \
+         marked for review and the most probable pairs are shown in detail below; every pair \
+         is in labels.csv.</figcaption>\n<svg xmlns=\"http://www.w3.org/2000/svg\" \
+         viewBox=\"0 0 720 720\" width=\"720\" height=\"720\" role=\"img\" \
+         aria-label=\"probability heat map\"><rect width=\"720\" height=\"720\" fill=\"#f4f4f4\"/>\n"
+    );
+    for (k, p) in data.pairs.iter().enumerate() {
+        let (Some(&i), Some(&j)) = (index.get(p.driver.as_str()), index.get(p.response.as_str()))
+        else {
+            continue;
+        };
+        let q = p.p_causal.clamp(0.0, 1.0);
+        // Blue (hue 240) through purple to red (hue 360) as the probability rises.
+        let hue = 240.0 + 120.0 * q;
+        put!(
+            out,
+            "<a href=\"#{}\"><rect x=\"{:.2}\" y=\"{:.2}\" width=\"{:.2}\" height=\"{:.2}\" \
+             fill=\"hsl({:.0},75%,50%)\"><title>does {} drive {}? p = {}, {}</title></rect></a>\n",
+            pair_anchor(rank[k]),
+            j as f64 * cell,
+            i as f64 * cell,
+            cell.max(0.5),
+            cell.max(0.5),
+            hue,
+            esc(&p.driver),
+            esc(&p.response),
+            fmt_p(p.p_causal),
+            p.verdict.as_str()
+        );
+    }
+    out.push_str("</svg>\n</figure>\n");
+}
+
+/// The verdict matrix of a run of up to [`MATRIX_MAX_VARIABLES`] variables.
+fn matrix(
+    out: &mut String,
+    data: &ReportData,
+    cells: &BTreeMap<(&str, &str), usize>,
+    rank: &[usize],
+) {
+    let n = data.variables.len();
     // Cell size follows the number of variables so 40 axes still fit a screen, and the
     // wrapper scrolls with sticky headers beyond that.
     let size = match n {
@@ -307,7 +377,10 @@ fn summary(
          <span class=\"badge v-no\"><span class=\"g\">&#x25CB;</span> non-causal</span> it does not &middot; \
          &ndash; not assessed</p>\n",
     );
+}
 
+/// The tables and notes that close the summary.
+fn summary_tail(out: &mut String, data: &ReportData) {
     out.push_str("<div class=\"tables\">\n");
     embedding_table(out, data);
     params_table(out, data);

@@ -20,6 +20,10 @@ pub const CURVE_COLUMNS: [&str; 5] = ["driver", "response", "library_size", "rep
 /// Default limit on curves rows (20 million: 9,900 pairs x 12 sizes x 100 replicates fit).
 pub const DEFAULT_CURVES_MAX_ROWS: usize = 20_000_000;
 
+/// Most library sizes accepted per pair: the features downstream cost time growing with the
+/// square of the sizes (200,000 sizes took minutes), and scans use a dozen.
+pub const MAX_CURVE_LIBRARY_SIZES: usize = 1_000;
+
 /// Furthest a skill may lie outside [-1, 1] and still be taken as rounding in a correlation.
 const SKILL_SLACK: f64 = 1e-9;
 
@@ -160,7 +164,7 @@ fn read_rows(
     let mut csv = Records::new(reader, source_name, opts.max_line_bytes);
     let mut record = ByteRecord::new();
     if !csv.next(&mut record)? {
-        return Err(InputError::Empty { file });
+        return Err(InputError::CurvesEmpty { file });
     }
     let header = decode_header(&file, &record)?;
     let mut at = [0usize; 5];
@@ -246,7 +250,7 @@ fn read_rows(
         lines.push(row);
     }
     if rows.is_empty() {
-        return Err(InputError::HeaderOnly { file });
+        return Err(InputError::CurvesHeaderOnly { file });
     }
     Ok((rows, lines))
 }
@@ -355,6 +359,15 @@ fn group(
                     size: first_size,
                 });
             }
+            if members.len() > MAX_CURVE_LIBRARY_SIZES {
+                return Err(InputError::TooManyLibrarySizes {
+                    file: file.to_string(),
+                    driver: driver.to_string(),
+                    response: response.to_string(),
+                    count: members.len(),
+                    max: MAX_CURVE_LIBRARY_SIZES,
+                });
+            }
             if let Some((&size_b, other)) = sizes.find(|(_, m)| m.len() != first.len()) {
                 return Err(InputError::UnequalReplicates {
                     file: file.to_string(),
@@ -396,6 +409,30 @@ mod tests {
 
     fn read(text: &str) -> Result<Vec<CurveRow>, InputError> {
         read_curves_from(text.as_bytes(), "curves.csv")
+    }
+
+    /// Findings: an empty curves file got the series-table hint ("one row per time point"),
+    /// and an unclosed quote was reported as missing fields.
+    #[test]
+    fn empty_and_unclosed_curves_files_get_curves_words() {
+        for (text, needle) in [
+            ("", "driver,response,library_size,replicate,skill"),
+            (
+                "driver,response,library_size,replicate,skill\n",
+                "library size and replicate",
+            ),
+        ] {
+            let msg = read(text).unwrap_err().to_string();
+            assert!(msg.contains(needle) && !msg.contains("time point"), "{msg}");
+        }
+        let msg =
+            read("driver,response,library_size,replicate,skill\na,b,10,1,\"0.5\na,b,20,1,0.6\n")
+                .unwrap_err()
+                .to_string();
+        assert!(
+            msg.contains("row 2") && msg.contains("never closed"),
+            "{msg}"
+        );
     }
 
     #[test]

@@ -44,6 +44,40 @@ pub enum InputError {
         file: String,
     },
 
+    /// A quote opens a field that is never closed: the rest of the file became one field.
+    #[error(
+        "{file}: row {row}: a field opens with a double quote (\") that is never closed, so the \
+         rest of the file was read as one field. Close the quote, or remove it if the field is \
+         not meant to be quoted"
+    )]
+    UnclosedQuote {
+        /// Input name.
+        file: String,
+        /// Row where the record with the open quote starts.
+        row: u64,
+    },
+
+    /// A curves file has no bytes, or only blank lines.
+    #[error(
+        "{file}: the curves file is empty (row 1 should be the header \
+         `driver,response,library_size,replicate,skill`). Write that header followed by one row \
+         per ensemble member: each library size of each pair, once per replicate"
+    )]
+    CurvesEmpty {
+        /// Input name.
+        file: String,
+    },
+
+    /// A curves file has a header but no rows.
+    #[error(
+        "{file}: only a header (row 1) was found and no ensemble rows follow it. Add one row per \
+         pair, library size and replicate below the header"
+    )]
+    CurvesHeaderOnly {
+        /// Input name.
+        file: String,
+    },
+
     /// A field contains bytes that are not valid UTF-8.
     #[error(
         "{file}: row {row}, column {column}: the text is not valid UTF-8 (the file was \
@@ -403,6 +437,26 @@ pub enum InputError {
         size: usize,
     },
 
+    /// A pair with more library sizes than the documented cap.
+    #[error(
+        "{file}: pair {driver} -> {response} has {count} library sizes, above the cap of {max}; \
+         the curve-shape features cost time growing with the square of the sizes, and a few \
+         dozen sizes show convergence. Keep at most {max} library sizes per pair (for example \
+         every k-th size)"
+    )]
+    TooManyLibrarySizes {
+        /// Input name.
+        file: String,
+        /// Driver name.
+        driver: String,
+        /// Response name.
+        response: String,
+        /// Library sizes found.
+        count: usize,
+        /// The cap.
+        max: usize,
+    },
+
     /// A pair whose library sizes carry different numbers of replicates.
     #[error(
         "{file}: pair {driver} -> {response}: library_size {size_a} has {count_a} replicates \
@@ -496,6 +550,47 @@ pub enum OutputError {
         /// The operating-system error.
         #[source]
         source: io::Error,
+    },
+
+    /// An output file would replace a file this run reads.
+    #[error(
+        "{}: this output would overwrite {}, an input of this run. Choose another --out \
+         directory, or move the input elsewhere",
+        path.display(),
+        input.display()
+    )]
+    WouldOverwriteInput {
+        /// The output path.
+        path: PathBuf,
+        /// The input it is (same path, link or file).
+        input: PathBuf,
+    },
+
+    /// Another run holds the output directory's lock.
+    #[error(
+        "{}: the folder is in use by another run ({holder}). Wait for it to finish, or \
+         choose another --out directory",
+        dir.display()
+    )]
+    Locked {
+        /// The directory.
+        dir: PathBuf,
+        /// Who holds it.
+        holder: String,
+    },
+
+    /// The output directory is one of the run's input directories.
+    #[error(
+        "{}: the output directory is {}, an input directory of this run. Choose another --out \
+         directory",
+        dir.display(),
+        input.display()
+    )]
+    OutputIsInputDir {
+        /// The output directory.
+        dir: PathBuf,
+        /// The input directory it is.
+        input: PathBuf,
     },
 }
 

@@ -46,8 +46,9 @@ pub(crate) struct GuardedReader<R> {
     scan: Scan,
     record_bytes: u64,
     limit: u64,
-    /// 1-based line of the byte being scanned. A line ends at `\r`, or at `\n` not
-    /// preceded by `\r`, so LF, CRLF and CR-only files are all counted as an editor does.
+    /// 1-based row of the byte being scanned. A row ends at `\r`, or at `\n` not
+    /// preceded by `\r`, outside quotes, so LF, CRLF and CR-only files are all counted as an
+    /// editor does, and a quoted line break does not shift the rows after it.
     line: u64,
     prev_cr: bool,
     /// Bytes handed to the parser so far (after any BOM), the parser's byte coordinates.
@@ -58,6 +59,8 @@ pub(crate) struct GuardedReader<R> {
     at_record_start: bool,
     record_line: u64,
     tripped: bool,
+    /// The inner reader returned end of input.
+    eof: bool,
 }
 
 impl<R: Read> GuardedReader<R> {
@@ -79,7 +82,13 @@ impl<R: Read> GuardedReader<R> {
             at_record_start: true,
             record_line: 1,
             tripped: false,
+            eof: false,
         }
+    }
+
+    /// Whether the input ended inside a quoted field (a quote that was never closed).
+    pub(crate) fn ended_in_quotes(&self) -> bool {
+        self.eof && matches!(self.scan, Scan::Quoted)
     }
 
     /// Whether a read failed because a record passed the limit.
@@ -170,7 +179,8 @@ impl<R: Read> GuardedReader<R> {
                     return false;
                 }
             }
-            if b == b'\r' || (b == b'\n' && !self.prev_cr) {
+            // A line break inside a quoted field belongs to the field, not to a new row.
+            if ends_record && (b == b'\r' || (b == b'\n' && !self.prev_cr)) {
                 self.line += 1;
             }
             self.prev_cr = b == b'\r';
@@ -195,6 +205,9 @@ impl<R: Read> Read for GuardedReader<R> {
             n
         } else {
             let n = self.inner.read(buf)?;
+            if n == 0 && !buf.is_empty() {
+                self.eof = true;
+            }
             self.hasher.update(&buf[..n]);
             n
         };

@@ -32,17 +32,19 @@ mod error;
 #[doc(hidden)]
 pub mod fuzzing;
 mod guard;
+mod lock;
 mod output;
 mod records;
 mod table;
 
 pub use cell::MISSING_TOKENS;
 pub use curves::{
-    CURVE_COLUMNS, CurvePair, CurvesCsv, CurvesOptions, DEFAULT_CURVES_MAX_ROWS, group_curves,
-    read_curve_pairs, read_curve_pairs_from, read_curves, read_curves_from, read_curves_with,
-    write_curves,
+    CURVE_COLUMNS, CurvePair, CurvesCsv, CurvesOptions, DEFAULT_CURVES_MAX_ROWS,
+    MAX_CURVE_LIBRARY_SIZES, group_curves, read_curve_pairs, read_curve_pairs_from, read_curves,
+    read_curves_from, read_curves_with, write_curves,
 };
 pub use error::{InputError, OutputError};
+pub use lock::{DirLock, LOCK_FILE, LockHolder};
 pub use output::{
     CsvTable, Export, JsonDocument, OutputDir, TextDocument, format_f64, write_csv_rows,
 };

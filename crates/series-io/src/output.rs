@@ -47,6 +47,44 @@ pub trait Export {
 #[derive(Debug, Clone)]
 pub struct OutputDir {
     dir: PathBuf,
+    /// Files this run reads; no output may replace one of them.
+    inputs: Vec<FileIdentity>,
+}
+
+/// What makes two paths the same file: the canonical path, and on Unix the device and
+/// inode, so a hard link or a symbolic link to an input is recognised as well.
+#[derive(Debug, Clone, PartialEq)]
+struct FileIdentity {
+    given: PathBuf,
+    canonical: PathBuf,
+    #[cfg(unix)]
+    node: (u64, u64),
+}
+
+impl FileIdentity {
+    fn of(path: &Path) -> Option<Self> {
+        let canonical = fs::canonicalize(path).ok()?;
+        #[cfg(unix)]
+        let node = {
+            use std::os::unix::fs::MetadataExt;
+            let m = fs::metadata(&canonical).ok()?;
+            (m.dev(), m.ino())
+        };
+        Some(Self {
+            given: path.to_path_buf(),
+            canonical,
+            #[cfg(unix)]
+            node,
+        })
+    }
+
+    fn same_file(&self, other: &FileIdentity) -> bool {
+        #[cfg(unix)]
+        if self.node == other.node {
+            return true;
+        }
+        self.canonical == other.canonical
+    }
 }
 
 /// Distinguishes temporary names of concurrent writes within one process.
@@ -66,7 +104,51 @@ impl OutputDir {
             dir: dir.clone(),
             source,
         })?;
-        Ok(Self { dir })
+        Ok(Self {
+            dir,
+            inputs: Vec::new(),
+        })
+    }
+
+    /// Mark `inputs` (files or directories this run reads) as protected, and check `names`,
+    /// the files the run will write, against them now, before any work.
+    ///
+    /// The output directory must not be an input directory, and no output name may resolve
+    /// to an input file (compared by canonical path and by file identity). Every later write
+    /// repeats the file check, so a file linked in during the run is not replaced either.
+    pub fn protect_inputs(mut self, inputs: &[&Path], names: &[&str]) -> Result<Self, OutputError> {
+        let here = FileIdentity::of(&self.dir);
+        for input in inputs {
+            let Some(id) = FileIdentity::of(input) else {
+                continue;
+            };
+            if here.as_ref().is_some_and(|h| h.same_file(&id)) {
+                return Err(OutputError::OutputIsInputDir {
+                    dir: self.dir.clone(),
+                    input: input.to_path_buf(),
+                });
+            }
+            self.inputs.push(id);
+        }
+        for name in names {
+            self.check_not_input(&self.dir.join(name))?;
+        }
+        Ok(self)
+    }
+
+    fn check_not_input(&self, target: &Path) -> Result<(), OutputError> {
+        if self.inputs.is_empty() {
+            return Ok(());
+        }
+        if let Some(id) = FileIdentity::of(target)
+            && let Some(input) = self.inputs.iter().find(|i| i.same_file(&id))
+        {
+            return Err(OutputError::WouldOverwriteInput {
+                path: target.to_path_buf(),
+                input: input.given.clone(),
+            });
+        }
+        Ok(())
     }
 
     /// The directory's path.
@@ -77,7 +159,9 @@ impl OutputDir {
     /// A subdirectory (created if needed) with the same atomic writing.
     pub fn subdir(&self, name: &str) -> Result<OutputDir, OutputError> {
         check_name(name)?;
-        OutputDir::create(self.dir.join(name))
+        let mut sub = OutputDir::create(self.dir.join(name))?;
+        sub.inputs = self.inputs.clone();
+        Ok(sub)
     }
 
     /// Write `name` atomically from a closure; returns the final path.
@@ -90,6 +174,7 @@ impl OutputDir {
     {
         check_name(name)?;
         let target = self.dir.join(name);
+        self.check_not_input(&target)?;
         let temp = self.dir.join(format!(
             ".{name}{PARTIAL_MARK}{}-{}",
             std::process::id(),
@@ -110,6 +195,7 @@ impl OutputDir {
         let file = writer.into_inner().map_err(|e| fail(e.into_error()))?;
         file.sync_all().map_err(fail)?;
         drop(file);
+        self.check_not_input(&target)?;
         fs::rename(&temp, &target).map_err(fail)?;
         cleanup.disarm();
         sync_dir(&self.dir).map_err(fail)?;
@@ -433,5 +519,57 @@ mod tests {
         assert_eq!(format_f64(0.25), "0.25");
         assert_eq!(format_f64(1e-300), "1e-300");
         assert_eq!(format_f64(f64::NAN), "NaN");
+    }
+
+    #[test]
+    fn outputs_never_replace_an_input_by_path_link_or_name() {
+        let root = temp_dir("inputs");
+        let d = root.as_path();
+        fs::create_dir_all(d).unwrap();
+        fs::write(d.join("curves.csv"), "mine").unwrap();
+        // Same path through the output directory.
+        let err = OutputDir::create(d)
+            .unwrap()
+            .protect_inputs(&[&d.join("curves.csv")], &["curves.csv"])
+            .unwrap_err();
+        assert!(
+            matches!(err, OutputError::WouldOverwriteInput { .. }),
+            "{err}"
+        );
+        assert!(err.to_string().contains("an input of this run"), "{err}");
+        // A hard link under the output name, made after the check: the write refuses it.
+        let out = OutputDir::create(d.join("o"))
+            .unwrap()
+            .protect_inputs(&[&d.join("curves.csv")], &["labels.csv"])
+            .unwrap();
+        fs::hard_link(d.join("curves.csv"), d.join("o/labels.csv")).unwrap();
+        assert!(matches!(
+            out.write_bytes("labels.csv", b"x"),
+            Err(OutputError::WouldOverwriteInput { .. })
+        ));
+        // A relative spelling of the same file.
+        let dotted = d.join("o/../curves.csv");
+        let err = OutputDir::create(d)
+            .unwrap()
+            .protect_inputs(&[&dotted], &["curves.csv"])
+            .unwrap_err();
+        assert!(
+            matches!(err, OutputError::WouldOverwriteInput { .. }),
+            "{err}"
+        );
+        assert_eq!(fs::read_to_string(d.join("curves.csv")).unwrap(), "mine");
+        // The output directory itself being an input directory.
+        let err = OutputDir::create(d.join("o"))
+            .unwrap()
+            .protect_inputs(&[&d.join("o/")], &[])
+            .unwrap_err();
+        assert!(matches!(err, OutputError::OutputIsInputDir { .. }), "{err}");
+        // Other names are written as before.
+        let out = OutputDir::create(d)
+            .unwrap()
+            .protect_inputs(&[&d.join("curves.csv")], &["labels.csv"])
+            .unwrap();
+        out.write_bytes("labels.csv", b"ok").unwrap();
+        fs::remove_dir_all(d).unwrap();
     }
 }

@@ -30,6 +30,10 @@ impl<R: Read> Records<R> {
     /// Read the next non-blank record; false at end of input.
     pub(crate) fn next(&mut self, record: &mut ByteRecord) -> Result<bool, InputError> {
         match self.reader.read_byte_record(record) {
+            Ok(true) if self.reader.get_ref().ended_in_quotes() => Err(InputError::UnclosedQuote {
+                file: self.file.clone(),
+                row: self.row(record),
+            }),
             Ok(more) => Ok(more),
             Err(err) => Err(self.map_error(err)),
         }

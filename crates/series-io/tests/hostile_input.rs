@@ -262,20 +262,21 @@ accepts!(
 );
 #[test]
 fn quoted_line_break_keeps_row_numbers() {
-    // The record starting on row 3 spans rows 3-4 (its cell "2\n" reads as 2 once
-    // trimmed), so the bad cell two records later is on row 6 of the file.
+    // The record on row 3 holds a quoted line break (its cell "2\n" reads as 2 once
+    // trimmed); it is still one row, so the bad cell two records later is row 5, not the
+    // file's line 6.
     let err = read(b"t,a,b\n0,1,2\n1,\"2\n\",3\n2,3,4\n3,x,5\n").unwrap_err();
     assert!(
-        matches!(err, InputError::NotNumeric { row: 6, .. }),
+        matches!(err, InputError::NotNumeric { row: 5, .. }),
         "{err:?}"
     );
-    assert_message(&err, &["row 6", "column `a`", "\"x\""]);
+    assert_message(&err, &["row 5", "column `a`", "\"x\""]);
 }
 rejects!(
     unclosed_quote,
     b"t,a,b\n0,1,2\n1,\"2,3\n2,3,4\n",
-    InputError::Ragged { .. } | InputError::NotNumeric { .. },
-    ["row 3"]
+    InputError::UnclosedQuote { row: 3, .. },
+    ["row 3", "never closed"]
 );
 
 // --- ragged rows ---

@@ -14,6 +14,7 @@
 #![deny(missing_docs)]
 
 mod assemble;
+pub mod estimate;
 mod judge;
 mod quality;
 mod report_view;
@@ -21,6 +22,7 @@ mod training;
 pub mod units;
 
 pub use assemble::{PairRecord, assemble, assemble_curves, cycles};
+pub use estimate::WorkEstimate;
 pub use judge::{Judgement, judge, rule_of_thumb};
 pub use quality::{QualityThresholds, quality_flags};
 pub use report_view::{KEY_FEATURES, RunFacts, report_view};
@@ -78,9 +80,67 @@ pub enum PipelineError {
     /// The cross-map parameters do not fit the data.
     #[error("{0}")]
     Params(#[source] crossmap_engine::EngineError),
+    /// The cross-map parameters do not fit one variable's data; the message names it.
+    #[error("variable `{variable}`: {reason}")]
+    ParamsOf {
+        /// The variable (response manifold).
+        variable: String,
+        /// What does not fit, and the fix.
+        reason: String,
+        /// The engine's error (not a `source`: its text names the variable by index, which
+        /// this message replaces).
+        engine: crossmap_engine::EngineError,
+    },
     /// Fewer than two variables.
     #[error("need at least two series, found {0}")]
     TooFewSeries(usize),
+}
+
+/// The engine's per-variable refusals, restated with the variable's name instead of its index.
+fn name_variable(e: crossmap_engine::EngineError, names: &[String]) -> PipelineError {
+    use crossmap_engine::EngineError as E;
+    let named = |k: usize| names.get(k).cloned().unwrap_or_else(|| format!("#{k}"));
+    let (variable, reason) = match &e {
+        E::LibrarySizeOutOfRange {
+            variable,
+            size,
+            min,
+            max,
+        } => (
+            named(*variable),
+            format!(
+                "library size {size} lies outside [{min}, {max}] (E+2 to the usable length); choose library sizes within that range"
+            ),
+        ),
+        E::LagTooLarge {
+            variable,
+            max_lag,
+            usable,
+        } => (
+            named(*variable),
+            format!(
+                "max cross-map lag {max_lag} must be below half its usable length {usable}; choose a smaller max lag"
+            ),
+        ),
+        E::SeriesTooShort {
+            variable: Some(k),
+            usable,
+            needed,
+            e: dim,
+            tau,
+        } => (
+            named(*k),
+            format!(
+                "{usable} usable delay vectors for E = {dim}, tau = {tau}, but at least {needed} are needed; use a longer series, fewer missing values, or a smaller E, tau or Theiler window"
+            ),
+        ),
+        _ => return PipelineError::Params(e),
+    };
+    PipelineError::ParamsOf {
+        variable,
+        reason,
+        engine: e,
+    }
 }
 
 /// Stage 1: the embedding of every variable, in column order.
@@ -114,7 +174,7 @@ pub fn validate_params(
 ) -> Result<ValidParams, PipelineError> {
     params
         .validate(series.len(), embeddings)
-        .map_err(PipelineError::Params)
+        .map_err(|e| name_variable(e, &series.names))
 }
 
 /// Stage 2: the ensembles of every pair whose response is variable `response`.

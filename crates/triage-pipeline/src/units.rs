@@ -4,6 +4,12 @@
 //! `unit-NNNNN.json` per finished unit (NNNNN = the response's column index). The same layout
 //! serves a shard directory (`scan --shard I/N`) and a scan's `.checkpoint/`.
 //!
+//! Every manifest and unit file carries the SHA-256 of the input table, the SHA-256 of the
+//! run's settings (resolved settings and flags) and the SHA-256 of its own content, so a file
+//! from another run, a damaged file or an edited one is refused by name on resume and merge.
+//! A unit's shape (one ensemble per other variable, the manifest's library sizes, replicate
+//! count, lags and surrogate count) and its values (skills in [-1, 1] or NaN) are checked too.
+//!
 //! Floats are stored as strings in shortest round-trip form ([`series_io::format_f64`]) and read
 //! back with Rust's exact decimal parser, so a unit read from disk is bit-identical to the one
 //! computed (NaN and infinities included, which JSON numbers cannot carry).
@@ -20,7 +26,7 @@ pub const MANIFEST_FILE: &str = "manifest.json";
 /// Format tag of manifests and unit files.
 pub const UNITS_FORMAT: &str = "ccm-triage-units";
 /// Version of the unit-store layout; readers refuse newer versions.
-pub const UNITS_VERSION: u32 = 2;
+pub const UNITS_VERSION: u32 = 3;
 
 /// Errors of unit stores and shard merging.
 #[derive(Debug, thiserror::Error)]
@@ -50,7 +56,7 @@ pub enum UnitsError {
     },
     /// A store belongs to another input or other settings than expected.
     #[error(
-        "{dir}: {what} differs from {expected}; these files are from another run: delete {dir} or use another output directory"
+        "{dir}: {what} from {expected}; these files are from another run: delete {dir} or use another output directory"
     )]
     Mismatch {
         /// The unit store.
@@ -104,6 +110,42 @@ pub enum UnitsError {
     /// Merge was given no directories.
     #[error("give at least one shard directory to merge")]
     NoShards,
+    /// A shard directory given to merge belongs to another run than the first one.
+    #[error(
+        "{dir}: {what} from that of {first}; these shards come from different runs: give the shard directories of one run (same input, settings and shard count)"
+    )]
+    ForeignShard {
+        /// The shard directory.
+        dir: PathBuf,
+        /// Which identity field differs.
+        what: String,
+        /// The first shard directory.
+        first: PathBuf,
+    },
+    /// A folder given to merge is not a shard directory.
+    #[error("{dir}: not a shard directory ({why}); give the folders written by `scan --shard I/N`")]
+    NotAShard {
+        /// The folder.
+        dir: PathBuf,
+        /// What it is instead.
+        why: &'static str,
+    },
+    /// Shards of different shard counts were given to one merge.
+    #[error(
+        "{dir} is shard {index} of {count}, but {first} is a shard of {first_count}; every shard of one merge must come from the same --shard I/N count"
+    )]
+    ShardCount {
+        /// The odd shard directory.
+        dir: PathBuf,
+        /// Its index.
+        index: usize,
+        /// Its count.
+        count: usize,
+        /// The first shard directory.
+        first: PathBuf,
+        /// The first one's count.
+        first_count: usize,
+    },
 }
 
 /// Which part of the work a process does: shard `index` of `count` (1-based).
@@ -202,16 +244,22 @@ impl StoreManifest {
         };
         if self.format != expected.format || self.version != expected.version {
             return Err(mismatch(
-                "the file format",
+                &format!(
+                    "the file format ({} version {}) differs",
+                    self.format, self.version
+                ),
                 format!("{} version {}", expected.format, expected.version),
             ));
         }
         if self.tool_version != expected.tool_version {
-            return Err(mismatch("the tool version", expected.tool_version.clone()));
+            return Err(mismatch(
+                &format!("the tool version ({}) differs", self.tool_version),
+                expected.tool_version.clone(),
+            ));
         }
         if self.input.sha256 != expected.input.sha256 {
             return Err(mismatch(
-                &format!("the input checksum ({})", short(&self.input.sha256)),
+                &format!("the input checksum ({}) differs", short(&self.input.sha256)),
                 format!(
                     "{} ({})",
                     expected.input.path,
@@ -220,22 +268,111 @@ impl StoreManifest {
             ));
         }
         if self.input.variables != expected.input.variables {
-            return Err(mismatch("the list of series", expected.input.path.clone()));
+            return Err(mismatch(
+                "the list of series differs",
+                expected.input.path.clone(),
+            ));
         }
         if self.settings != expected.settings || self.flags != expected.flags {
+            let mut diffs = Vec::new();
+            json_differences("", &self.settings, &expected.settings, &mut diffs);
+            if diffs.is_empty() {
+                // The flags resolve into the settings; name them only when nothing else differs.
+                json_differences("flags.", &self.flags, &expected.flags, &mut diffs);
+            }
+            let shown = if diffs.is_empty() {
+                String::new()
+            } else {
+                let more = diffs.len().saturating_sub(3);
+                let mut list: Vec<String> = diffs.into_iter().take(3).collect();
+                if more > 0 {
+                    list.push(format!("and {more} more"));
+                }
+                format!(" ({})", list.join("; "))
+            };
             return Err(mismatch(
-                "the analysis settings",
+                &format!("the analysis settings differ{shown}"),
                 "the settings of this command".into(),
             ));
         }
         if same_shard && self.shard != expected.shard {
             return Err(mismatch(
-                &format!("the shard ({})", self.shard),
+                &format!("the shard ({}) differs", self.shard),
                 format!("--shard {}", expected.shard),
             ));
         }
         Ok(())
     }
+}
+
+/// The settings that differ between `found` (a stored file) and `wanted` (this command), as
+/// `path: X in the files, Y here`, depth first.
+fn json_differences(
+    prefix: &str,
+    found: &serde_json::Value,
+    wanted: &serde_json::Value,
+    out: &mut Vec<String>,
+) {
+    use serde_json::Value;
+    match (found, wanted) {
+        (Value::Object(a), Value::Object(b)) => {
+            let mut keys: Vec<&String> = a.keys().chain(b.keys()).collect();
+            keys.sort();
+            keys.dedup();
+            for k in keys {
+                let null = Value::Null;
+                json_differences(
+                    &format!("{prefix}{k}."),
+                    a.get(k).unwrap_or(&null),
+                    b.get(k).unwrap_or(&null),
+                    out,
+                );
+            }
+        }
+        (a, b) if a != b => {
+            let name = prefix.trim_end_matches('.');
+            let show = |v: &Value| {
+                let t = v.to_string();
+                if t.len() > 40 {
+                    format!("{}…", &t[..40])
+                } else {
+                    t
+                }
+            };
+            out.push(format!(
+                "{name}: {} in the files, {} here",
+                show(a),
+                show(b)
+            ));
+        }
+        _ => {}
+    }
+}
+
+/// SHA-256 of the run's settings: the resolved settings and the flags, as stored.
+pub fn settings_sha256(settings: &serde_json::Value, flags: &serde_json::Value) -> String {
+    let text = serde_json::to_vec(&serde_json::json!({"settings": settings, "flags": flags}))
+        .unwrap_or_default();
+    series_io::checksum::sha256_hex(&text)
+}
+
+impl StoreManifest {
+    /// SHA-256 of this run's settings (see [`settings_sha256`]).
+    pub fn settings_sha256(&self) -> String {
+        settings_sha256(&self.settings, &self.flags)
+    }
+}
+
+/// A manifest as stored: the manifest and its checksums.
+#[derive(Debug, Serialize, Deserialize)]
+struct SealedManifest {
+    manifest: StoreManifest,
+    settings_sha256: String,
+    content_sha256: String,
+}
+
+fn content_sha256<T: Serialize>(value: &T) -> String {
+    series_io::checksum::sha256_hex(&serde_json::to_vec(value).unwrap_or_default())
 }
 
 fn short(sha: &str) -> String {
@@ -253,6 +390,16 @@ impl UnitStore {
     pub fn open(dir: impl AsRef<Path>) -> Result<Self, UnitsError> {
         let out = OutputDir::create(dir)?;
         Ok(Self { out })
+    }
+
+    /// Refuse, now and at every later write, to replace any of `inputs` (the files the run
+    /// reads) with a file of the store; `names` are the extra files the caller will write.
+    pub fn protect_inputs(self, inputs: &[&Path], names: &[&str]) -> Result<Self, UnitsError> {
+        let mut all = vec![MANIFEST_FILE];
+        all.extend_from_slice(names);
+        Ok(Self {
+            out: self.out.protect_inputs(inputs, &all)?,
+        })
     }
 
     /// The store's directory.
@@ -276,9 +423,14 @@ impl UnitStore {
 
     /// Write (replace) the manifest atomically.
     pub fn write_manifest(&self, manifest: &StoreManifest) -> Result<(), UnitsError> {
+        let sealed = SealedManifest {
+            settings_sha256: manifest.settings_sha256(),
+            content_sha256: content_sha256(manifest),
+            manifest: manifest.clone(),
+        };
         self.out.export(&JsonDocument {
             name: MANIFEST_FILE.into(),
-            value: manifest,
+            value: &sealed,
         })?;
         Ok(())
     }
@@ -299,27 +451,32 @@ impl UnitStore {
         for &unit in &manifest.units {
             let path = self.path().join(unit_file_name(unit));
             if path.exists() {
-                let ensembles = read_unit(&path, unit, &manifest.input)?;
+                let ensembles = read_unit(&path, unit, manifest)?;
                 done.insert(unit, ensembles);
             }
         }
         Ok(done)
     }
 
-    /// Save one finished unit atomically.
+    /// Save one finished unit of `manifest`'s run atomically.
     pub fn save_unit(
         &self,
         unit: usize,
-        input: &InputIdentity,
+        manifest: &StoreManifest,
         ensembles: &[PairEnsemble],
     ) -> Result<(), UnitsError> {
-        let file = UnitFile {
+        let body = UnitBody {
             format: UNITS_FORMAT.into(),
             version: UNITS_VERSION,
-            input_sha256: input.sha256.clone(),
+            input_sha256: manifest.input.sha256.clone(),
+            settings_sha256: manifest.settings_sha256(),
             response: unit,
-            response_name: input.variables[unit].clone(),
+            response_name: manifest.input.variables[unit].clone(),
             ensembles: ensembles.iter().map(StoredEnsemble::from).collect(),
+        };
+        let file = UnitFile {
+            content_sha256: content_sha256(&body),
+            body,
         };
         let bytes = serde_json::to_vec(&file).map_err(|e| UnitsError::Malformed {
             path: self.path().join(unit_file_name(unit)),
@@ -329,13 +486,13 @@ impl UnitStore {
         Ok(())
     }
 
-    /// Read one saved unit, checked against the manifest's input.
+    /// Read one saved unit, checked against the manifest.
     pub fn load_unit(
         &self,
         unit: usize,
-        input: &InputIdentity,
+        manifest: &StoreManifest,
     ) -> Result<Vec<PairEnsemble>, UnitsError> {
-        read_unit(&self.path().join(unit_file_name(unit)), unit, input)
+        read_unit(&self.path().join(unit_file_name(unit)), unit, manifest)
     }
 }
 
@@ -362,7 +519,18 @@ pub fn read_manifest(path: &Path) -> Result<StoreManifest, UnitsError> {
         path: path.to_path_buf(),
         reason,
     };
-    let m: StoreManifest = read_json(path)?;
+    let sealed: SealedManifest = read_json(path)?;
+    if sealed.content_sha256 != content_sha256(&sealed.manifest) {
+        return Err(malformed(
+            "its content checksum does not match: the file was damaged or edited".into(),
+        ));
+    }
+    let m = sealed.manifest;
+    if sealed.settings_sha256 != m.settings_sha256() {
+        return Err(malformed(
+            "its settings checksum does not match its settings".into(),
+        ));
+    }
     if m.format != UNITS_FORMAT {
         return Err(malformed(format!(
             "format `{}`, expected `{UNITS_FORMAT}`",
@@ -385,31 +553,53 @@ pub fn read_manifest(path: &Path) -> Result<StoreManifest, UnitsError> {
 fn read_unit(
     path: &Path,
     unit: usize,
-    input: &InputIdentity,
+    manifest: &StoreManifest,
 ) -> Result<Vec<PairEnsemble>, UnitsError> {
     let malformed = |reason: String| UnitsError::Malformed {
         path: path.to_path_buf(),
         reason,
     };
+    let input = &manifest.input;
     let file: UnitFile = read_json(path)?;
-    if file.format != UNITS_FORMAT || file.version > UNITS_VERSION {
+    let body = file.body;
+    if body.format != UNITS_FORMAT || body.version != UNITS_VERSION {
         return Err(malformed(format!(
-            "format `{}` version {}",
-            file.format, file.version
+            "format `{}` version {}, expected {UNITS_FORMAT} version {UNITS_VERSION}",
+            body.format, body.version
         )));
     }
-    if file.input_sha256 != input.sha256 {
+    if file.content_sha256 != content_sha256(&body) {
+        return Err(malformed(
+            "its content checksum does not match: the file was damaged or edited".into(),
+        ));
+    }
+    if body.input_sha256 != input.sha256 {
         return Err(malformed("computed from another input file".into()));
     }
-    if file.response != unit || input.variables.get(unit) != Some(&file.response_name) {
+    if body.settings_sha256 != manifest.settings_sha256() {
+        return Err(malformed(
+            "computed with other settings than this run's (another seed or other options)".into(),
+        ));
+    }
+    if body.response != unit || input.variables.get(unit) != Some(&body.response_name) {
         return Err(malformed(format!(
             "holds unit {} instead of {unit}",
-            file.response
+            body.response
         )));
     }
     let n = input.variables.len();
-    let mut out = Vec::with_capacity(file.ensembles.len());
-    for e in file.ensembles {
+    if body.ensembles.len() != n - 1 {
+        return Err(malformed(format!(
+            "holds {} pairs for response `{}`, the run has {} (one per other variable)",
+            body.ensembles.len(),
+            body.response_name,
+            n - 1
+        )));
+    }
+    let shape = UnitShape::of(manifest, unit);
+    let mut seen = vec![false; n];
+    let mut out = Vec::with_capacity(body.ensembles.len());
+    for e in body.ensembles {
         let e = e.into_ensemble().map_err(malformed)?;
         if e.response != unit || e.driver >= n || e.driver == unit {
             return Err(malformed(format!(
@@ -417,9 +607,103 @@ fn read_unit(
                 e.driver, e.response
             )));
         }
+        if std::mem::replace(&mut seen[e.driver], true) {
+            return Err(malformed(format!(
+                "pair {} -> {} appears twice",
+                input.variables[e.driver], body.response_name
+            )));
+        }
+        shape.check(&e).map_err(|why| {
+            malformed(format!(
+                "pair {} -> {}: {why}",
+                input.variables[e.driver], body.response_name
+            ))
+        })?;
         out.push(e);
     }
     Ok(out)
+}
+
+/// What every ensemble of one unit must look like, from the manifest's resolved settings.
+struct UnitShape {
+    library_sizes: Option<Vec<usize>>,
+    replicates: Option<usize>,
+    max_lag: Option<usize>,
+    surrogates: Option<usize>,
+}
+
+impl UnitShape {
+    fn of(m: &StoreManifest, unit: usize) -> Self {
+        let plan = &m.settings["per_response"][unit];
+        let count = |v: &serde_json::Value| v.as_u64().map(|x| x as usize);
+        Self {
+            library_sizes: plan["library_sizes"]
+                .as_array()
+                .map(|a| a.iter().filter_map(count).collect()),
+            replicates: count(&m.settings["replicates"]),
+            max_lag: count(&plan["max_lag"]),
+            surrogates: count(&m.settings["surrogates"]),
+        }
+    }
+
+    fn check(&self, e: &PairEnsemble) -> Result<(), String> {
+        if let Some(sizes) = &self.library_sizes
+            && &e.library_sizes != sizes
+        {
+            return Err(format!(
+                "library sizes {:?}, the run's are {:?}",
+                e.library_sizes, sizes
+            ));
+        }
+        if let Some(r) = self.replicates
+            && let Some((k, row)) = e.skills.iter().enumerate().find(|(_, row)| row.len() != r)
+        {
+            return Err(format!(
+                "{} replicates at library size {}, the run has {r}",
+                row.len(),
+                e.library_sizes[k]
+            ));
+        }
+        if let Some(k) = self.max_lag {
+            let k = k as i32;
+            if e.lags != (-k..=k).collect::<Vec<_>>() {
+                return Err(format!("lags other than -{k}..{k}"));
+            }
+        }
+        if let Some(n) = self.surrogates
+            && (e.surrogate_skills.len() != n || e.seasonal_surrogate_skills.len() != n)
+        {
+            return Err(format!(
+                "{} + {} surrogate skills, the run has {n} of each kind",
+                e.surrogate_skills.len(),
+                e.seasonal_surrogate_skills.len()
+            ));
+        }
+        // A skill is a correlation: within [-1, 1], or NaN where it is undefined.
+        let out_of_range = |v: &[f64]| {
+            v.iter()
+                .copied()
+                .find(|x| !x.is_nan() && !(-1.0..=1.0).contains(x))
+        };
+        for (k, row) in e.skills.iter().enumerate() {
+            if let Some(x) = out_of_range(row) {
+                return Err(format!(
+                    "skill {x} at library size {} is outside [-1, 1]",
+                    e.library_sizes[k]
+                ));
+            }
+        }
+        for (what, v) in [
+            ("lag skill", &e.lag_skills),
+            ("surrogate skill", &e.surrogate_skills),
+            ("seasonal surrogate skill", &e.seasonal_surrogate_skills),
+        ] {
+            if let Some(x) = out_of_range(v) {
+                return Err(format!("{what} {x} is outside [-1, 1]"));
+            }
+        }
+        Ok(())
+    }
 }
 
 /// Where each unit of a merge comes from.
@@ -438,17 +722,40 @@ pub fn plan_merge(dirs: &[PathBuf]) -> Result<MergePlan, UnitsError> {
     };
     let mut manifests = Vec::with_capacity(dirs.len());
     for dir in dirs {
-        manifests.push(read_manifest(&dir.join(MANIFEST_FILE))?);
+        let path = dir.join(MANIFEST_FILE);
+        if !path.is_file() {
+            let why = if !dir.is_dir() {
+                "no such folder"
+            } else if dir.join("run.json").is_file() {
+                "it is the folder of a finished scan; merge reads the folders of `scan --shard` runs"
+            } else {
+                "it holds no manifest.json"
+            };
+            return Err(UnitsError::NotAShard {
+                dir: dir.clone(),
+                why,
+            });
+        }
+        manifests.push(read_manifest(&path)?);
     }
     let first = manifests[0].clone();
     let n = first.input.variables.len();
     let mut sources: Vec<Option<usize>> = vec![None; n];
     for (k, (dir, m)) in dirs.iter().zip(&manifests).enumerate() {
+        if m.shard.count != first.shard.count {
+            return Err(UnitsError::ShardCount {
+                dir: dir.clone(),
+                index: m.shard.index,
+                count: m.shard.count,
+                first: first_dir.clone(),
+                first_count: first.shard.count,
+            });
+        }
         m.check_same_run(&first, dir, false).map_err(|e| match e {
-            UnitsError::Mismatch { dir, what, .. } => UnitsError::Mismatch {
+            UnitsError::Mismatch { dir, what, .. } => UnitsError::ForeignShard {
                 dir,
                 what,
-                expected: format!("that of {}", first_dir.display()),
+                first: first_dir.clone(),
             },
             other => other,
         })?;
@@ -504,17 +811,25 @@ pub fn load_merge(dirs: &[PathBuf], plan: &MergePlan) -> Result<Vec<PairEnsemble
         all.extend(read_unit(
             &dirs[k].join(unit_file_name(u)),
             u,
-            &plan.manifest.input,
+            &plan.manifest,
         )?);
     }
     Ok(all)
 }
 
+/// A unit file: its content and the checksum of that content.
 #[derive(Debug, Serialize, Deserialize)]
 struct UnitFile {
+    body: UnitBody,
+    content_sha256: String,
+}
+
+#[derive(Debug, Serialize, Deserialize)]
+struct UnitBody {
     format: String,
     version: u32,
     input_sha256: String,
+    settings_sha256: String,
     response: usize,
     response_name: String,
     ensembles: Vec<StoredEnsemble>,
@@ -615,10 +930,10 @@ mod tests {
             driver,
             response,
             library_sizes: vec![10, 20],
-            // 0.1 + 0.2 has no short decimal; NaN and infinities are not JSON numbers.
-            skills: vec![vec![0.1 + 0.2, f64::NAN], vec![f64::INFINITY, -1e-300]],
+            // 0.1 + 0.2 has no short decimal; NaN is not a JSON number.
+            skills: vec![vec![0.1 + 0.2, f64::NAN], vec![1.0, -1e-300]],
             lags: vec![-1, 0, 1],
-            lag_skills: vec![0.5, 1.0 / 3.0, f64::NEG_INFINITY],
+            lag_skills: vec![0.5, 1.0 / 3.0, -1.0],
             surrogate_skills: vec![5e-324],
             seasonal_surrogate_skills: vec![0.25, f64::NAN],
         }
@@ -654,8 +969,9 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let store = UnitStore::open(dir.path()).unwrap();
         let units = vec![ensemble(0, 1), ensemble(2, 1)];
-        store.save_unit(1, &input(), &units).unwrap();
-        let back = store.load_unit(1, &input()).unwrap();
+        let m = manifest(ShardSpec::WHOLE);
+        store.save_unit(1, &m, &units).unwrap();
+        let back = store.load_unit(1, &m).unwrap();
         assert_eq!(back.len(), 2);
         for (a, b) in units.iter().zip(&back) {
             assert_eq!(bits(a), bits(b));
@@ -671,7 +987,7 @@ mod tests {
         )
         .unwrap();
         assert!(matches!(
-            store.load_unit(2, &input()),
+            store.load_unit(2, &m),
             Err(UnitsError::Malformed { .. })
         ));
     }
@@ -731,5 +1047,162 @@ mod tests {
             Err(UnitsError::Incomplete { .. })
         ));
         assert!(matches!(plan_merge(&[]), Err(UnitsError::NoShards)));
+    }
+
+    /// A manifest whose settings fix the shape of every unit, as a real scan's do.
+    fn shaped_manifest() -> StoreManifest {
+        let mut m = manifest(ShardSpec::WHOLE);
+        let plan = serde_json::json!({"library_sizes": [10, 20], "max_lag": 1});
+        m.settings = serde_json::json!({
+            "seed": 1, "replicates": 2, "surrogates": 1, "per_response": [plan, plan, plan],
+        });
+        m
+    }
+
+    fn saved_unit(dir: &Path, m: &StoreManifest) -> (UnitStore, PathBuf) {
+        let store = UnitStore::open(dir).unwrap();
+        let mut a = ensemble(0, 1);
+        a.seasonal_surrogate_skills.pop();
+        let mut b = ensemble(2, 1);
+        b.seasonal_surrogate_skills.pop();
+        store.save_unit(1, m, &[a, b]).unwrap();
+        (store, dir.join(unit_file_name(1)))
+    }
+
+    /// Rewrite a unit file through `edit` on its JSON; with `reseal`, recompute its content
+    /// checksum as a careful forger would.
+    fn edit_unit(path: &Path, reseal: bool, edit: impl FnOnce(&mut serde_json::Value)) {
+        let mut v: serde_json::Value =
+            serde_json::from_slice(&std::fs::read(path).unwrap()).unwrap();
+        edit(&mut v["body"]);
+        if reseal {
+            let body: UnitBody = serde_json::from_value(v["body"].clone()).unwrap();
+            v["content_sha256"] = content_sha256(&body).into();
+        }
+        std::fs::write(path, serde_json::to_vec(&v).unwrap()).unwrap();
+    }
+
+    fn refusal(store: &UnitStore, m: &StoreManifest) -> String {
+        let err = store.load_unit(1, m).unwrap_err();
+        assert!(matches!(err, UnitsError::Malformed { .. }), "{err}");
+        let text = err.to_string();
+        assert!(text.contains("unit-00001.json"), "{text}");
+        text
+    }
+
+    #[test]
+    fn damaged_or_forged_units_are_refused_by_name() {
+        let dir = tempfile::tempdir().unwrap();
+        let m = shaped_manifest();
+        let (store, path) = saved_unit(dir.path(), &m);
+        assert_eq!(store.load_unit(1, &m).unwrap().len(), 2);
+        let original = std::fs::read(&path).unwrap();
+        let restore = || std::fs::write(&path, &original).unwrap();
+
+        // One ensemble deleted: silently 131 pairs instead of 132 before.
+        edit_unit(&path, false, |b| {
+            b["ensembles"].as_array_mut().unwrap().pop();
+        });
+        assert!(refusal(&store, &m).contains("content checksum"));
+        edit_unit(&path, true, |_| {});
+        restore();
+        edit_unit(&path, true, |b| {
+            b["ensembles"].as_array_mut().unwrap().pop();
+        });
+        assert!(refusal(&store, &m).contains("holds 1 pairs"));
+        restore();
+        edit_unit(&path, true, |b| {
+            b["ensembles"][0]["skills"][0][0] = "9.18".into()
+        });
+        assert!(refusal(&store, &m).contains("skill 9.18 at library size 10 is outside [-1, 1]"));
+        restore();
+        edit_unit(&path, true, |b| {
+            b["ensembles"][1]["skills"][1] = serde_json::json!(["0.5"])
+        });
+        assert!(refusal(&store, &m).contains("1 replicates at library size 20"));
+        restore();
+        edit_unit(&path, true, |b| {
+            b["ensembles"][1]["library_sizes"] = serde_json::json!([10, 99])
+        });
+        assert!(refusal(&store, &m).contains("library sizes [10, 99]"));
+        restore();
+        edit_unit(&path, true, |b| b["ensembles"][1]["driver"] = 0.into());
+        assert!(refusal(&store, &m).contains("appears twice"));
+        restore();
+        edit_unit(&path, true, |b| {
+            b["ensembles"][0]["lag_skills"][0] = "inf".into()
+        });
+        assert!(refusal(&store, &m).contains("lag skill inf"));
+        restore();
+        assert_eq!(store.load_unit(1, &m).unwrap().len(), 2);
+
+        // A unit of another seed copied in: refused, though its input is the same.
+        let mut other = m.clone();
+        other.settings["seed"] = 4.into();
+        let elsewhere = tempfile::tempdir().unwrap();
+        saved_unit(elsewhere.path(), &other);
+        std::fs::copy(elsewhere.path().join(unit_file_name(1)), &path).unwrap();
+        assert!(refusal(&store, &m).contains("other settings"));
+    }
+
+    #[test]
+    fn manifests_carry_their_checksums_and_name_what_differs() {
+        let dir = tempfile::tempdir().unwrap();
+        let store = UnitStore::open(dir.path()).unwrap();
+        let m = shaped_manifest();
+        store.write_manifest(&m).unwrap();
+        assert_eq!(store.read_manifest().unwrap().unwrap(), m);
+        let path = dir.path().join(MANIFEST_FILE);
+        let mut v: serde_json::Value =
+            serde_json::from_slice(&std::fs::read(&path).unwrap()).unwrap();
+        v["manifest"]["settings"]["replicates"] = 3.into();
+        std::fs::write(&path, serde_json::to_vec(&v).unwrap()).unwrap();
+        let err = store.read_manifest().unwrap_err().to_string();
+        assert!(
+            err.contains("manifest.json") && err.contains("content checksum"),
+            "{err}"
+        );
+        store.write_manifest(&m).unwrap();
+        let mut other = m.clone();
+        other.settings["seed"] = 3.into();
+        let err = store.begin(&other).unwrap_err().to_string();
+        assert!(
+            err.contains("the analysis settings differ (seed: 1 in the files, 3 here)"),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn merge_names_a_scan_folder_and_a_different_shard_count() {
+        let root = tempfile::tempdir().unwrap();
+        let scan = root.path().join("scan");
+        std::fs::create_dir(&scan).unwrap();
+        std::fs::write(scan.join("run.json"), "{}").unwrap();
+        let err = plan_merge(&[scan]).unwrap_err().to_string();
+        assert!(err.contains("finished scan"), "{err}");
+        assert!(!err.contains("delete"), "{err}");
+        let a = root.path().join("a");
+        let b = root.path().join("b");
+        UnitStore::open(&a)
+            .unwrap()
+            .write_manifest(&manifest(ShardSpec { index: 1, count: 2 }))
+            .unwrap();
+        UnitStore::open(&b)
+            .unwrap()
+            .write_manifest(&manifest(ShardSpec { index: 2, count: 3 }))
+            .unwrap();
+        let err = plan_merge(&[a, b]).unwrap_err();
+        assert!(
+            matches!(
+                err,
+                UnitsError::ShardCount {
+                    count: 3,
+                    first_count: 2,
+                    ..
+                }
+            ),
+            "{err}"
+        );
+        assert!(!err.to_string().contains("delete"), "{err}");
     }
 }

@@ -124,6 +124,17 @@ impl ModelBundle {
             },
         };
         let (p, d) = head.score(std::slice::from_ref(&x))?;
+        // Extreme inputs can overflow a standardised value; a probability that is not a
+        // number is refused here rather than written into a result file.
+        if !(0.0..=1.0).contains(&p[0]) {
+            return Err(ModelError::Inconsistent {
+                part: format!("the {} head", head.head.as_str()),
+                reason: format!(
+                    "it gave the probability {} for this row, whose values are far outside the training range",
+                    p[0]
+                ),
+            });
+        }
         let fine = match (&self.fine, head.head) {
             (Some(f), Head::Full) => Some(f.model.probabilities(&head.standardiser.apply(&x))),
             _ => None,
@@ -136,5 +147,315 @@ impl ModelBundle {
             ood_threshold: head.ood.threshold,
             fine,
         })
+    }
+}
+
+/// Load-time checks of a decoded bundle: every size and index the prediction code trusts.
+///
+/// A payload can pass its checksum (anyone can recompute it) and still describe a model whose
+/// parts do not fit together; prediction indexes by these numbers without further checks, so
+/// each one is checked here once, when the file is read.
+mod checks {
+    use crate::ModelError;
+    use crate::calibrate::Calibrator;
+    use crate::fit::{HeadModel, Scorer};
+    use crate::forest::BaggedTree;
+
+    pub(super) fn bad(part: impl Into<String>, reason: impl Into<String>) -> ModelError {
+        ModelError::Inconsistent {
+            part: part.into(),
+            reason: reason.into(),
+        }
+    }
+
+    pub(super) fn finite(part: &str, what: &str, v: &[f64]) -> Result<(), ModelError> {
+        match v.iter().position(|x| !x.is_finite()) {
+            None => Ok(()),
+            Some(k) => Err(bad(part, format!("{what} entry {k} is {}", v[k]))),
+        }
+    }
+
+    fn len(part: &str, what: &str, found: usize, expected: usize) -> Result<(), ModelError> {
+        if found == expected {
+            Ok(())
+        } else {
+            Err(bad(
+                part,
+                format!("{what} has {found} entries, the head reads {expected} columns"),
+            ))
+        }
+    }
+
+    /// One head against the bundle's `n_features` feature names.
+    pub(super) fn head(h: &HeadModel, part: &str, n_features: usize) -> Result<(), ModelError> {
+        let width = h.columns.len();
+        if width == 0 {
+            return Err(bad(part, "the head reads no columns"));
+        }
+        let mut seen = vec![false; n_features];
+        for &c in &h.columns {
+            if c >= n_features {
+                return Err(bad(
+                    part,
+                    format!("column index {c} is beyond the {n_features} feature names"),
+                ));
+            }
+            if std::mem::replace(&mut seen[c], true) {
+                return Err(bad(part, format!("column index {c} appears twice")));
+            }
+        }
+        let s = &h.standardiser;
+        len(part, "the standardiser's means", s.mean.len(), width)?;
+        len(part, "the standardiser's scales", s.scale.len(), width)?;
+        finite(part, "the standardiser's means", &s.mean)?;
+        // The fitter never stores a scale at or below 1e-12 (it uses 1 for a constant column).
+        if let Some(k) = s.scale.iter().position(|&x| !(x.is_finite() && x > 1e-12)) {
+            return Err(bad(
+                part,
+                format!(
+                    "standardiser scale {k} is {}, not a number above 1e-12",
+                    s.scale[k]
+                ),
+            ));
+        }
+        match &h.scorer {
+            Scorer::Logistic(m) => {
+                len(part, "the logistic coefficients", m.coef.len(), width)?;
+                finite(part, "the logistic coefficients", &m.coef)?;
+                finite(part, "the logistic intercept", &[m.intercept])?;
+            }
+            Scorer::Forest(f) => {
+                if f.trees.is_empty() {
+                    return Err(bad(part, "the tree ensemble has no trees"));
+                }
+                for (k, t) in f.trees.iter().enumerate() {
+                    tree(t, &format!("{part}, tree {k}"), width)?;
+                }
+            }
+        }
+        match &h.calibrator {
+            Calibrator::Platt(m) => finite(part, "the Platt parameters", &[m.a, m.b])?,
+            Calibrator::Isotonic { model, floor } => {
+                if !(0.0..0.5).contains(floor) {
+                    return Err(bad(
+                        part,
+                        format!("isotonic floor {floor} is outside [0, 0.5)"),
+                    ));
+                }
+                if model.x.len() != model.y.len() || model.x.is_empty() {
+                    return Err(bad(
+                        part,
+                        format!(
+                            "the isotonic table has {} scores and {} values; it needs the same positive number of each",
+                            model.x.len(),
+                            model.y.len()
+                        ),
+                    ));
+                }
+                finite(part, "the isotonic scores", &model.x)?;
+                if model.x.windows(2).any(|w| w[0] >= w[1]) {
+                    return Err(bad(part, "the isotonic scores do not increase"));
+                }
+                if model.y.iter().any(|v| !(0.0..=1.0).contains(v))
+                    || model.y.windows(2).any(|w| w[0] > w[1])
+                {
+                    return Err(bad(
+                        part,
+                        "the isotonic values are not non-decreasing probabilities",
+                    ));
+                }
+            }
+        }
+        let o = &h.ood;
+        len(part, "the familiarity mean", o.mean.len(), width)?;
+        if o.precision.len() != width * width {
+            return Err(bad(
+                part,
+                format!(
+                    "the familiarity matrix has {} entries, {width} x {width} expected",
+                    o.precision.len()
+                ),
+            ));
+        }
+        finite(part, "the familiarity mean", &o.mean)?;
+        finite(part, "the familiarity matrix", &o.precision)?;
+        if o.threshold.is_nan() || o.threshold < 0.0 || !(0.0..=100.0).contains(&o.percentile) {
+            return Err(bad(
+                part,
+                format!(
+                    "familiarity threshold {} at percentile {} is out of range",
+                    o.threshold, o.percentile
+                ),
+            ));
+        }
+        Ok(())
+    }
+
+    /// One bagged tree reading a standardised row of `width` columns.
+    ///
+    /// smartcore keeps its nodes private, so they are read through the tree's own serde form.
+    /// Prediction walks from node 0 by child indices: each child must lie after its parent
+    /// (which also rules out cycles) and inside the node list, each split must read one of
+    /// the tree's columns, and each leaf's output must name a class 0 or 1.
+    fn tree(t: &BaggedTree, part: &str, width: usize) -> Result<(), ModelError> {
+        if t.columns.is_empty() {
+            return Err(bad(part, "the tree reads no columns"));
+        }
+        if let Some(&c) = t.columns.iter().find(|&&c| c >= width) {
+            return Err(bad(
+                part,
+                format!("column index {c} is beyond the head's {width} columns"),
+            ));
+        }
+        if t.columns.windows(2).any(|w| w[0] >= w[1]) {
+            return Err(bad(part, "the tree's column indices do not increase"));
+        }
+        let v = serde_json::to_value(&t.tree).map_err(|e| bad(part, e.to_string()))?;
+        let num = |v: &serde_json::Value| v.as_u64().map(|x| x as usize);
+        let classes = v["classes"]
+            .as_array()
+            .ok_or_else(|| bad(part, "no class list"))?;
+        if classes.is_empty()
+            || classes.len() > 2
+            || classes.iter().any(|c| num(c).is_none_or(|c| c > 1))
+        {
+            return Err(bad(part, "the class list must hold the classes 0 and 1"));
+        }
+        let width_seen = v["num_features"].as_u64();
+        if width_seen != Some(t.columns.len() as u64) {
+            return Err(bad(
+                part,
+                format!(
+                    "the tree was grown on {} columns but reads {}",
+                    width_seen.map_or("an unknown number of".into(), |w| w.to_string()),
+                    t.columns.len()
+                ),
+            ));
+        }
+        let nodes = v["nodes"]
+            .as_array()
+            .ok_or_else(|| bad(part, "no node list"))?;
+        if nodes.is_empty() {
+            return Err(bad(part, "the tree has no nodes"));
+        }
+        for (i, n) in nodes.iter().enumerate() {
+            let node = format!("{part}, node {i}");
+            if num(&n["output"]).is_none_or(|o| o >= classes.len()) {
+                return Err(bad(node, "its output is not one of the tree's classes"));
+            }
+            let child = |key: &str| -> Result<Option<usize>, ModelError> {
+                match &n[key] {
+                    serde_json::Value::Null => Ok(None),
+                    c => match num(c) {
+                        Some(c) if c > i && c < nodes.len() => Ok(Some(c)),
+                        _ => Err(bad(
+                            node.clone(),
+                            format!(
+                                "child {c} is not a later node of the {} in the tree",
+                                nodes.len()
+                            ),
+                        )),
+                    },
+                }
+            };
+            match (child("true_child")?, child("false_child")?) {
+                (None, None) => {}
+                (Some(_), Some(_)) => {
+                    if num(&n["split_feature"]).is_none_or(|f| f >= t.columns.len()) {
+                        return Err(bad(
+                            node,
+                            format!(
+                                "it splits on feature {} of a tree that reads {} columns",
+                                n["split_feature"],
+                                t.columns.len()
+                            ),
+                        ));
+                    }
+                    if n["split_value"].as_f64().is_none_or(|x| !x.is_finite()) {
+                        return Err(bad(node, "its split value is not a finite number"));
+                    }
+                }
+                _ => return Err(bad(node, "it has one child; a split needs two")),
+            }
+        }
+        Ok(())
+    }
+}
+
+impl ModelBundle {
+    /// Checks every internal size and index against the feature names and each head's
+    /// dimensions, so that prediction can never index out of range or return a non-finite
+    /// probability; [`ModelBundle::from_bytes`] calls it on every model it reads.
+    pub fn validate(&self) -> Result<(), ModelError> {
+        let n = self.feature_names.len();
+        if n == 0 {
+            return Err(checks::bad("feature names", "the model names no features"));
+        }
+        let mut names: Vec<&String> = self.feature_names.iter().collect();
+        names.sort();
+        if let Some(w) = names.windows(2).find(|w| w[0] == w[1]) {
+            return Err(checks::bad(
+                "feature names",
+                format!("`{}` appears twice", w[0]),
+            ));
+        }
+        if self.full.head != Head::Full {
+            return Err(checks::bad("full head", "it is labelled as another head"));
+        }
+        checks::head(&self.full, "full head", n)?;
+        if let Some(h) = &self.curve_only {
+            if h.head != Head::CurveOnly {
+                return Err(checks::bad(
+                    "curve-only head",
+                    "it is labelled as another head",
+                ));
+            }
+            checks::head(h, "curve-only head", n)?;
+        }
+        if let Some(f) = &self.fine {
+            let m = &f.model;
+            let width = self.full.columns.len();
+            if m.classes.is_empty()
+                || m.classes.len() != m.intercept.len()
+                || m.classes.len() != m.coef.len()
+            {
+                return Err(checks::bad(
+                    "four-label head",
+                    format!(
+                        "{} classes, {} intercepts and {} coefficient rows",
+                        m.classes.len(),
+                        m.intercept.len(),
+                        m.coef.len()
+                    ),
+                ));
+            }
+            if let Some(&c) = m.classes.iter().find(|&&c| c >= 4) {
+                return Err(checks::bad(
+                    "four-label head",
+                    format!("class index {c} is not one of the four labels"),
+                ));
+            }
+            checks::finite("four-label head", "the intercepts", &m.intercept)?;
+            for (k, row) in m.coef.iter().enumerate() {
+                if row.len() != width {
+                    return Err(checks::bad(
+                        "four-label head",
+                        format!(
+                            "coefficient row {k} has {} entries, the full head reads {width} columns",
+                            row.len()
+                        ),
+                    ));
+                }
+                checks::finite("four-label head", "the coefficients", row)?;
+            }
+        }
+        let (lo, hi) = self.policy.band;
+        if !(0.0 <= lo && lo <= hi && hi <= 1.0) {
+            return Err(checks::bad(
+                "verdict policy",
+                format!("review band {lo},{hi} is not within 0 <= LO <= HI <= 1"),
+            ));
+        }
+        Ok(())
     }
 }

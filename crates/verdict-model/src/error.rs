@@ -150,8 +150,59 @@ pub enum ModelError {
         extra: usize,
     },
     /// The payload passed its checksum but could not be decoded.
-    #[error("model payload could not be decoded: {0}")]
+    #[error(
+        "model payload could not be decoded: {0}; the file was written by another build or edited, retrain it with `ccm-triage train`"
+    )]
     Decode(String),
+    /// The header's reserved bytes are not zero.
+    #[error(
+        "model file header: the reserved bytes 10-11 hold {found:#06x} instead of zero; the file was edited or written by another tool"
+    )]
+    ReservedBytes {
+        /// The reserved field as read (little-endian).
+        found: u16,
+    },
+    /// The payload decoded, but its internal sizes or indices do not fit together.
+    #[error(
+        "model file is inconsistent: {part}: {reason}; the file was damaged or edited, retrain it with `ccm-triage train`"
+    )]
+    Inconsistent {
+        /// Which part of the model (head, scorer, tree, calibration table, ...).
+        part: String,
+        /// What does not fit.
+        reason: String,
+    },
+    /// The model file is not a regular file (a FIFO, a device, a directory).
+    #[error(
+        "model file {path}: not a regular file ({kind}); give the path of a model.bin written by `ccm-triage train`"
+    )]
+    NotRegularFile {
+        /// The path given.
+        path: std::path::PathBuf,
+        /// What it is instead.
+        kind: &'static str,
+    },
+    /// The model file is larger than any valid model file.
+    #[error(
+        "model file {path}: {size} bytes, above the largest valid model file ({limit} bytes); this is not a model written by `ccm-triage train`"
+    )]
+    FileTooLarge {
+        /// The path given.
+        path: std::path::PathBuf,
+        /// Its size in bytes.
+        size: u64,
+        /// The largest size accepted.
+        limit: u64,
+    },
+    /// The model file could not be opened or read.
+    #[error("model file {path} cannot be read: {source}")]
+    Io {
+        /// The path given.
+        path: std::path::PathBuf,
+        /// Why.
+        #[source]
+        source: std::io::Error,
+    },
     /// The model could not be encoded.
     #[error("model could not be encoded: {0}")]
     Encode(String),
