@@ -218,11 +218,23 @@ mod checks {
                 ),
             ));
         }
+        let logistic = |m: &crate::logistic::LogisticModel| -> Result<(), ModelError> {
+            len(part, "the logistic coefficients", m.coef.len(), width)?;
+            finite(part, "the logistic coefficients", &m.coef)?;
+            finite(part, "the logistic intercept", &[m.intercept])
+        };
+        let boost = |b: &crate::boost::BoostModel| -> Result<(), ModelError> {
+            if b.trees.is_empty() {
+                return Err(bad(part, "the boosted trees have no trees"));
+            }
+            b.check(width).map_err(|e| bad(part, e))
+        };
         match &h.scorer {
-            Scorer::Logistic(m) => {
-                len(part, "the logistic coefficients", m.coef.len(), width)?;
-                finite(part, "the logistic coefficients", &m.coef)?;
-                finite(part, "the logistic intercept", &[m.intercept])?;
+            Scorer::Logistic(m) => logistic(m)?,
+            Scorer::Boost(b) => boost(b)?,
+            Scorer::Blend(m, b) => {
+                logistic(m)?;
+                boost(b)?;
             }
             Scorer::Forest(f) => {
                 if f.trees.is_empty() {
