@@ -27,7 +27,9 @@ pub struct Cli {
 #[derive(Debug, Subcommand)]
 pub enum Command {
     /// Label every ordered pair of series in a CSV table (the main job).
-    #[command(after_help = "Example:\n  ccm-triage scan lagoon.csv --out lagoon-run --seed 7")]
+    #[command(
+        after_help = "Example:\n  ccm-triage scan demo-data/sound.csv --out sound-run --seed 7"
+    )]
     Scan(ScanArgs),
     /// Label ensembles computed elsewhere, given as a curves.csv table.
     #[command(after_help = "Example:\n  ccm-triage label curves.csv --out relabelled")]

@@ -6,13 +6,13 @@ use verdict_model::Verdict;
 
 use crate::cli::{DemoArgs, EngineArgs, ScanArgs, VerdictArgs};
 
-const DATA: &str = include_str!("../../demo-data/lagoon.csv");
+const DATA: &str = include_str!("../../demo-data/sound.csv");
 const KEY: &str = include_str!("../../demo-data/answer-key.csv");
 const STORY: &str = include_str!("../../demo-data/README.md");
 
 pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
     let out = OutputDir::create(&args.out)?;
-    let data = out.write_bytes("lagoon.csv", DATA.as_bytes())?;
+    let data = out.write_bytes("sound.csv", DATA.as_bytes())?;
     out.write_bytes("answer-key.csv", KEY.as_bytes())?;
     let scan = ScanArgs {
         data,

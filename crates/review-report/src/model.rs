@@ -3,7 +3,7 @@
 /// Everything one report shows; filled by an adapter from a run's results.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ReportData {
-    /// Page title, e.g. `"ccm-triage report — lagoon.csv"`.
+    /// Page title, e.g. `"ccm-triage report — sound.csv"`.
     pub title: String,
     /// File name of the series table (or curves table) the run read.
     pub input_name: String,
