@@ -284,7 +284,7 @@ fn report_renders_in_chromium_without_console_errors() {
     let dir = tempfile::tempdir().unwrap();
     let mut browser = Browser::launch(&exe);
     let demo = demo_report(dir.path());
-    let mut pages = vec![("demo report", demo, 6u64)];
+    let mut pages = vec![("demo report", demo, 7u64)];
     for (name, data) in [
         ("small.html", samples::small()),
         ("wide.html", samples::wide(40)),

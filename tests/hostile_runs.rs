@@ -85,6 +85,9 @@ fn crafted_model_files_are_refused_at_load_time() {
     match &mut m.full.scorer {
         verdict_model::fit::Scorer::Forest(f) => f.trees[0].columns.push(248),
         verdict_model::fit::Scorer::Logistic(l) => l.coef.truncate(2),
+        verdict_model::fit::Scorer::Boost(b) | verdict_model::fit::Scorer::Blend(_, b) => {
+            b.trees[0].nodes[0].feature = 248
+        }
     }
     m.full.ood.precision.push(0.0);
     cases.push(("scorer.bin", m.to_bytes().unwrap(), "inconsistent"));

@@ -808,7 +808,8 @@ fn fit_head(
 /// leave-one-family-out), with the leave-one-family-out value beside it.
 fn targets(suite: Option<&Summary>, cv: Option<&Summary>) -> Vec<TargetCheck> {
     type Get = fn(&Summary) -> Option<f64>;
-    let rows: [(&str, &str, Get, fn(f64) -> bool); 5] = [
+    type Row<'a> = (&'a str, &'a str, Get, fn(f64) -> bool);
+    let rows: [Row; 5] = [
         ("ROC AUC", ">= 0.88", |s| s.roc_auc, |v| v >= 0.88),
         (
             "expected calibration error",
