@@ -395,20 +395,7 @@ mod tests {
         );
         let fx: serde_json::Value =
             serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
-        let rows = |k: &str| -> Vec<Vec<f64>> {
-            fx[k]
-                .as_array()
-                .unwrap()
-                .iter()
-                .map(|r| {
-                    r.as_array()
-                        .unwrap()
-                        .iter()
-                        .map(|v| v.as_f64().unwrap())
-                        .collect()
-                })
-                .collect()
-        };
+        let rows = |k: &str| crate::tests_support::rows(&fx[k]);
         let labels = |k: &str| -> Vec<bool> {
             fx[k]
                 .as_array()

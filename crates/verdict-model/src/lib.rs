@@ -243,6 +243,11 @@ pub(crate) mod tests_support {
         serde_json::from_str(&text).expect("fixture is JSON")
     }
 
+    /// A JSON array of arrays of numbers as rows of floats.
+    pub fn rows(v: &serde_json::Value) -> Vec<Vec<f64>> {
+        v.as_array().expect("array").iter().map(floats).collect()
+    }
+
     /// A JSON array of numbers as floats.
     pub fn floats(v: &serde_json::Value) -> Vec<f64> {
         v.as_array()

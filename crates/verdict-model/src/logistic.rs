@@ -194,18 +194,7 @@ mod tests {
         // scikit-learn 1.5.2 LogisticRegression(C=1/alpha) minimises the same objective.
         let fx = crate::tests_support::fixture();
         let l2 = &fx["logistic_l2"];
-        let rows: Vec<Vec<f64>> = l2["x"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|r| {
-                r.as_array()
-                    .unwrap()
-                    .iter()
-                    .map(|v| v.as_f64().unwrap())
-                    .collect()
-            })
-            .collect();
+        let rows = crate::tests_support::rows(&l2["x"]);
         let y: Vec<bool> = l2["y"]
             .as_array()
             .unwrap()
