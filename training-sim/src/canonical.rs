@@ -218,10 +218,11 @@ pub(crate) fn draw(spec: &Spec, index: usize, attempt: u32) -> CanonicalDraw {
             // rx 3.8, ry 3.5 in the paper's figures (from memory); couplings 0-0.3.
             put("rx", d.uniform(3.7, 3.9));
             put("ry", d.uniform(3.5, 3.8));
+            // Coupled variants are 1 (x -> y), 2 (y -> x) and 3 (both ways), weighted 1 : 1 : 2.
             let v = if uncoupled {
                 0
             } else {
-                d.weighted(&[1.0, 1.0, 2.0])
+                1 + d.weighted(&[1.0, 1.0, 2.0])
             };
             // Log-uniform couplings: weak links (such as the paper's 0.02) are as common as
             // strong ones.
@@ -232,7 +233,8 @@ pub(crate) fn draw(spec: &Spec, index: usize, attempt: u32) -> CanonicalDraw {
                 1 => (0.0, beta(0.02), "one_way_x_to_y"),
                 // y drives x only.
                 2 => (beta(0.02), 0.0, "one_way_y_to_x"),
-                _ => (beta(0.01), beta(0.01), "two_way"),
+                3 => (beta(0.01), beta(0.01), "two_way"),
+                _ => unreachable!("weighted() returns an index into its three weights"),
             };
             put("beta_xy", bxy);
             put("beta_yx", byx);
@@ -780,6 +782,37 @@ mod tests {
             }
         }
         assert_eq!(forms.len(), Form::ALL.len());
+    }
+
+    #[test]
+    fn logistic_pairs_come_in_every_variant_with_matching_truth() {
+        // Regression: the two-way variant (each species acting on the other, the form of
+        // Sugihara et al. 2012 with beta_xy 0.02, beta_yx 0.1) was never drawn, and the
+        // uncoupled one came twice as often as asked.
+        let s = spec(
+            "seed = 5\n[sampling]\nlength = 100\n[canonical]\ncount = 200\nuncoupled_share = 0\nhenon_pair = 0\nrossler_lorenz = 0\nlogistic_chain = 0\nmoran_pair = 0\nseasonal_epidemics = 0\nforced_population = 0\n",
+        );
+        let mut seen = std::collections::BTreeMap::<String, usize>::new();
+        for sys in crate::simulate(&s).unwrap() {
+            *seen.entry(sys.structure.clone()).or_default() += 1;
+            let direct = |d: &str| {
+                sys.truth
+                    .iter()
+                    .find(|t| t.driver == d)
+                    .is_some_and(|t| t.label == Label::Direct)
+            };
+            let want = match sys.structure.as_str() {
+                "one_way_x_to_y" => (true, false),
+                "one_way_y_to_x" => (false, true),
+                "two_way" => (true, true),
+                other => panic!("{}: variant {other} with uncoupled_share 0", sys.id),
+            };
+            assert_eq!((direct("x"), direct("y")), want, "{}", sys.id);
+        }
+        // Weights 1 : 1 : 2, so two-way is about half of 200 (binomial sd about 7).
+        let two_way = seen.get("two_way").copied().unwrap_or(0);
+        assert!((70..=130).contains(&two_way), "{seen:?}");
+        assert!(seen.len() == 3, "{seen:?}");
     }
 
     #[test]
