@@ -56,7 +56,9 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Finished> {
     let store = UnitStore::open(out.path().join(CHECKPOINT_DIR))?;
     let units = compute_units(Some(&store), &prepared, &observer)?;
     let ensembles: Vec<PairEnsemble> = units.into_values().flatten().collect();
-    let finished = run::finish(&prepared, &ensembles, &policy, &model, "scan", None, started)?;
+    let finished = run::finish(
+        &prepared, &ensembles, &policy, &model, "scan", None, started,
+    )?;
     run::write_results(&out, &finished)?;
     std::fs::remove_dir_all(store.path()).with_context(|| {
         format!(

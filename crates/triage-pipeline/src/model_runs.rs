@@ -8,7 +8,9 @@ use anyhow::Context;
 use series_io::{CsvTable, JsonDocument, OutputDir};
 use training_sim::{Spec, System};
 use verdict_model::metrics::{Summary, summarise};
-use verdict_model::{FitConfig, Head, ModelBundle, SpecIdentity, TrainingSet, Verdict, VerdictPolicy};
+use verdict_model::{
+    FitConfig, Head, ModelBundle, SpecIdentity, TrainingSet, Verdict, VerdictPolicy,
+};
 
 use crate::model_source::LoadedModel;
 use crate::orchestration::{Cancelled, Observer};
@@ -111,7 +113,9 @@ pub fn train(
 ) -> anyhow::Result<Trained> {
     let (spec, identity) = read_spec(spec_path)?;
     let settings = engine.analysis_settings()?;
-    train_spec(spec_path, &spec, identity, suite, engine, &settings, observer)
+    train_spec(
+        spec_path, &spec, identity, suite, engine, &settings, observer,
+    )
 }
 
 /// [`train`] on a spec already read; the output folder can be prepared in between.

@@ -156,8 +156,8 @@ pub fn prepare_table(
     };
     let context = || format!("cannot analyse {source}");
     let embeddings = crate::embed_all(&series, &settings.embedding).with_context(context)?;
-    let params = crate::validate_params(&series, &embeddings, &settings.crossmap)
-        .with_context(context)?;
+    let params =
+        crate::validate_params(&series, &embeddings, &settings.crossmap).with_context(context)?;
     let manifest = StoreManifest {
         format: units::UNITS_FORMAT.into(),
         version: units::UNITS_VERSION,

@@ -55,8 +55,7 @@ pub fn analyse_systems(
     settings: &AnalysisSettings,
     progress: &(dyn Fn(usize) + Sync),
 ) -> (Vec<AnalysedSystem>, Vec<SkippedSystem>) {
-    analyse_systems_until(systems, settings, progress, &|| false)
-        .expect("never asked to stop")
+    analyse_systems_until(systems, settings, progress, &|| false).expect("never asked to stop")
 }
 
 /// [`analyse_systems`] that stops with [`Cancelled`] once `stop` returns true (it is asked
