@@ -25,7 +25,7 @@ use triage_pipeline::settings::{EngineSettings, policy};
 use triage_pipeline::units::ShardSpec;
 
 create_exception!(
-    _native,
+    ccm_triage,
     TriageError,
     PyValueError,
     "Bad input or a refused run; the message is the command line's, caused-by lines included."
@@ -369,22 +369,26 @@ fn simulate<'py>(
     out: Option<PathBuf>,
     progress: Option<&Bound<'py, PyAny>>,
 ) -> PyResult<Bound<'py, PyDict>> {
-    let (systems, truth) = run_long(py, progress, None, |obs| {
+    let (parsed, systems) = run_long(py, progress, None, |obs| {
         let (parsed, _) = model_runs::read_spec(&spec)?;
         let systems = model_runs::simulate_spec(&parsed, obs)?;
-        if let Some(dir) = &out {
-            let dir = OutputDir::create(dir)?;
-            let _lock = run::lock_folder(&dir, obs)?;
-            let dir = dir.protect_inputs(&[&spec], &[])?;
-            model_runs::write_simulation(&dir, &parsed, &systems)?;
-        }
-        let truth = training_sim::truth_csv(&systems);
-        let files: Vec<(String, String)> = systems
-            .iter()
-            .map(|s| (s.id.clone(), s.to_csv_string()))
-            .collect();
-        Ok((files, truth))
+        Ok((parsed, systems))
     })?;
+    // Written only once the run is known not to be interrupted.
+    if let Some(dir) = &out {
+        py.detach(|| -> anyhow::Result<()> {
+            let dir = OutputDir::create(dir)?;
+            let _lock = run::lock_folder(&dir, &run::Silent)?;
+            let dir = dir.protect_inputs(&[&spec], &[])?;
+            model_runs::write_simulation(&dir, &parsed, &systems)
+        })
+        .map_err(to_py)?;
+    }
+    let truth = training_sim::truth_csv(&systems);
+    let systems: Vec<(String, String)> = systems
+        .iter()
+        .map(|s| (s.id.clone(), s.to_csv_string()))
+        .collect();
     let result = PyDict::new(py);
     let d = PyDict::new(py);
     for (id, csv) in systems {
@@ -409,16 +413,20 @@ fn train(
     note: Option<&Bound<'_, PyAny>>,
 ) -> PyResult<String> {
     let engine = engine_settings(engine)?;
-    run_long(py, progress, note, |obs| {
-        let trained = model_runs::train(&spec, suite.as_deref(), &engine, obs)?;
+    let trained = run_long(py, progress, note, |obs| {
+        model_runs::train(&spec, suite.as_deref(), &engine, obs)
+    })?;
+    // Written only once the run is known not to be interrupted.
+    py.detach(|| -> anyhow::Result<String> {
         let dir = OutputDir::create(&out)?;
-        let _lock = run::lock_folder(&dir, obs)?;
+        let _lock = run::lock_folder(&dir, &run::Silent)?;
         let mut read: Vec<&Path> = vec![&spec];
         read.extend(suite.as_deref());
         let dir = dir.protect_inputs(&read, &[])?;
         model_runs::write_trained(&dir, &trained)?;
         Ok(trained.bundle.card().to_json()?)
     })
+    .map_err(to_py)
 }
 
 /// `evaluate`: the model's metrics (metrics.json's text) and predictions.csv's bytes; the
@@ -435,22 +443,27 @@ fn evaluate<'py>(
     progress: Option<&Bound<'py, PyAny>>,
 ) -> PyResult<(String, Bound<'py, PyBytes>, String)> {
     let engine = engine_settings(engine)?;
-    let (metrics, predictions, table) = run_long(py, progress, None, |obs| {
+    let e = run_long(py, progress, None, |obs| {
         let model = load_model(model.as_deref())?;
         let policy = policy(&review_band)?;
-        let e = model_runs::evaluate(&model, &spec, &engine, &policy, obs)?;
-        if let Some(dir) = &out {
-            let dir = OutputDir::create(dir)?;
-            model_runs::write_evaluation(&dir, &e)?;
-        }
-        let mut bytes = Vec::new();
-        e.predictions.write_to(&mut bytes)?;
-        Ok((
-            serde_json::to_string(&e.metrics)?,
-            bytes,
-            model_runs::comparison_table(&e.model, &e.rule_of_thumb, e.skipped),
-        ))
+        model_runs::evaluate(&model, &spec, &engine, &policy, obs)
     })?;
+    // Written only once the run is known not to be interrupted.
+    let (metrics, predictions, table) = py
+        .detach(|| -> anyhow::Result<(String, Vec<u8>, String)> {
+            if let Some(dir) = &out {
+                let dir = OutputDir::create(dir)?;
+                model_runs::write_evaluation(&dir, &e)?;
+            }
+            let mut bytes = Vec::new();
+            e.predictions.write_to(&mut bytes)?;
+            Ok((
+                serde_json::to_string(&e.metrics)?,
+                bytes,
+                model_runs::comparison_table(&e.model, &e.rule_of_thumb, e.skipped),
+            ))
+        })
+        .map_err(to_py)?;
     Ok((metrics, PyBytes::new(py, &predictions), table))
 }
 
