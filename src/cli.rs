@@ -3,7 +3,7 @@
 use std::path::PathBuf;
 
 use clap::{Args, Parser, Subcommand};
-use serde::{Deserialize, Serialize};
+use triage_pipeline::settings;
 
 /// Triage convergent cross mapping evidence for every ordered pair of variables.
 ///
@@ -66,26 +66,27 @@ pub enum Command {
     Demo(DemoArgs),
 }
 
-/// Options that fix the cross-map computation (recorded in shard manifests, hence serde).
-#[derive(Debug, Clone, Args, Serialize, Deserialize)]
+/// Options that fix the cross-map computation (shard manifests record them as the
+/// pipeline's `EngineSettings`; the defaults are that type's).
+#[derive(Debug, Clone, Args)]
 pub struct EngineArgs {
     /// Master seed of the random libraries and surrogates.
-    #[arg(long, default_value_t = 1, value_name = "N")]
+    #[arg(long, default_value_t = settings::DEFAULT_SEED, value_name = "N")]
     pub seed: u64,
     /// Embedding dimension for every variable (default: chosen per variable by simplex projection).
     #[arg(long, value_name = "E")]
     pub dim: Option<usize>,
     /// Largest embedding dimension tried when choosing it.
-    #[arg(long, default_value_t = 10, value_name = "E")]
+    #[arg(long, default_value_t = settings::DEFAULT_MAX_DIM, value_name = "E")]
     pub max_dim: usize,
     /// Embedding delay in time steps for every variable (default: chosen per variable).
     #[arg(long, value_name = "TAU")]
     pub delay: Option<usize>,
     /// Library sizes: a count of log-spaced sizes (e.g. 12) or an explicit list (e.g. 20,40,80).
-    #[arg(long, default_value = "12", value_name = "COUNT|L1,L2,..")]
+    #[arg(long, default_value = settings::DEFAULT_SIZES, value_name = "COUNT|L1,L2,..")]
     pub sizes: String,
     /// Random libraries per library size.
-    #[arg(long, default_value_t = 100, value_name = "R")]
+    #[arg(long, default_value_t = settings::DEFAULT_REPLICATES, value_name = "R")]
     pub replicates: usize,
     /// Theiler window: neighbours this close in time to the estimated point are excluded
     /// (default: chosen from the embedding).
@@ -95,7 +96,7 @@ pub struct EngineArgs {
     #[arg(long, value_name = "K")]
     pub max_lag: Option<usize>,
     /// Surrogate drivers of each kind (phase-randomised and seasonal) per pair.
-    #[arg(long, default_value_t = 39, value_name = "N")]
+    #[arg(long, default_value_t = settings::DEFAULT_SURROGATES, value_name = "N")]
     pub surrogates: usize,
     /// Seasonal period in time steps that every variable's seasonal surrogates keep (default:
     /// each variable's own dominant cycle, found from its periodogram, counted as a season only
@@ -105,7 +106,6 @@ pub struct EngineArgs {
     /// Make the seasonal surrogates plain phase-randomised ones, for records known to carry no
     /// outside rhythm (seasons, tides, daily cycles).
     #[arg(long)]
-    #[serde(default)]
     pub no_seasonal_surrogates: bool,
 }
 

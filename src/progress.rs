@@ -1,8 +1,11 @@
-//! Progress bars on stderr, shown only when stderr is a terminal and `--quiet` is off.
+//! Progress bars and notes on stderr; bars are shown only when stderr is a terminal and
+//! `--quiet` is off.
 
 use std::io::IsTerminal;
+use std::sync::Mutex;
 
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+use triage_pipeline::orchestration::Observer;
 
 /// A progress bar that draws nothing when hidden.
 pub struct Progress {
@@ -28,13 +31,54 @@ impl Progress {
         Self { bar }
     }
 
-    /// A callback that libraries call with the number of finished items.
-    pub fn callback(&self) -> impl Fn(usize) + Sync + '_ {
-        move |done| self.bar.set_position(done as u64)
-    }
-
     /// Remove the bar.
     pub fn finish(self) {
         self.bar.finish_and_clear();
+    }
+}
+
+/// The terminal as a run's observer: one bar per stage, notes on stderr, never cancelled
+/// (Ctrl-C ends the process; finished work units stay in the checkpoint).
+pub struct Terminal {
+    quiet: bool,
+    bar: Mutex<Option<Progress>>,
+}
+
+impl Terminal {
+    /// Bars hidden when `quiet`.
+    pub fn new(quiet: bool) -> Self {
+        Self {
+            quiet,
+            bar: Mutex::new(None),
+        }
+    }
+}
+
+impl Observer for Terminal {
+    fn begin(&self, what: &str, total: u64) {
+        let old = self
+            .bar
+            .lock()
+            .expect("bar lock")
+            .replace(Progress::new(self.quiet, total, what));
+        if let Some(old) = old {
+            old.finish();
+        }
+    }
+
+    fn advance(&self, done: u64) {
+        if let Some(p) = &*self.bar.lock().expect("bar lock") {
+            p.bar.set_position(done);
+        }
+    }
+
+    fn end(&self) {
+        if let Some(p) = self.bar.lock().expect("bar lock").take() {
+            p.finish();
+        }
+    }
+
+    fn note(&self, text: &str) {
+        eprintln!("{text}");
     }
 }

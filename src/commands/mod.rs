@@ -1,10 +1,8 @@
-//! One module per group of subcommands; each reads its inputs, calls the libraries, writes files.
+//! One module per group of subcommands; each turns flags into pipeline calls and prints.
 
 mod demo;
-mod model;
 mod scan;
 mod simulate;
-mod tables;
 
 pub use scan::{features, label, merge, scan};
 pub use simulate::{demo, evaluate, model_card, simulate, train};

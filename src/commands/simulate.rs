@@ -1,68 +1,23 @@
-//! `simulate`, `train`, `evaluate`, `model-card` and `demo`.
+//! `simulate`, `train`, `evaluate`, `model-card` and `demo`: flags to the pipeline's model
+//! runs, then what they print.
 
-use std::path::Path;
+use series_io::OutputDir;
+use triage_pipeline::model_runs;
+use triage_pipeline::model_source as model;
+use triage_pipeline::orchestration::lock_folder;
+use triage_pipeline::settings::{EngineSettings, policy};
 
-use anyhow::Context;
-use series_io::{CsvTable, JsonDocument, OutputDir};
-use training_sim::Spec;
-use triage_pipeline::{AnalysedSystem, AnalysisSettings, analyse_systems, judge, rule_of_thumb};
-use verdict_model::metrics::{Summary, summarise};
-use verdict_model::{FitConfig, Head, SpecIdentity, Verdict, VerdictPolicy};
-
-use super::model;
 use crate::cli::{DemoArgs, EvaluateArgs, ModelCardArgs, SimulateArgs, TrainArgs};
-use crate::config;
-use crate::progress::Progress;
-
-/// A spec file, parsed, with its identity (file stem and SHA-256 of its text).
-fn read_spec(path: &Path) -> anyhow::Result<(Spec, SpecIdentity)> {
-    let text = std::fs::read_to_string(path)
-        .with_context(|| format!("cannot read spec file {}", path.display()))?;
-    let spec = Spec::from_toml_str(&text).with_context(|| {
-        format!(
-            "spec file {} is not valid; see training-sim/SPEC.md for every key",
-            path.display()
-        )
-    })?;
-    let name = path
-        .file_stem()
-        .map(|s| s.to_string_lossy().into_owned())
-        .unwrap_or_default();
-    Ok((
-        spec,
-        SpecIdentity {
-            name,
-            hash: verdict_model::sha256_hex(text.as_bytes()),
-        },
-    ))
-}
-
-fn simulate_spec(spec: &Spec, quiet: bool) -> anyhow::Result<Vec<training_sim::System>> {
-    let bar = Progress::new(quiet, spec.total_count() as u64, "simulating");
-    let done = std::sync::atomic::AtomicUsize::new(0);
-    let systems = training_sim::simulate_with_progress(spec, &|_| {
-        let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
-        (bar.callback())(n);
-    })?;
-    bar.finish();
-    Ok(systems)
-}
+use crate::progress::Terminal;
 
 pub fn simulate(args: SimulateArgs, quiet: bool) -> anyhow::Result<()> {
-    let (spec, _) = read_spec(&args.spec)?;
-    let systems = simulate_spec(&spec, quiet)?;
+    let observer = Terminal::new(quiet);
+    let (spec, _) = model_runs::read_spec(&args.spec)?;
+    let systems = model_runs::simulate_spec(&spec, &observer)?;
     let out = OutputDir::create(&args.out)?;
-    let _lock = super::scan::lock_folder(&out)?;
+    let _lock = lock_folder(&out, &observer)?;
     let out = out.protect_inputs(&[&args.spec], &[])?;
-    for s in &systems {
-        out.write_bytes(&format!("{}.csv", s.id), s.to_csv_string().as_bytes())?;
-    }
-    out.write_bytes(
-        "resolved-spec.json",
-        training_sim::resolved_spec_json(&spec, &systems).as_bytes(),
-    )?;
-    // truth.csv last: its presence marks a complete set.
-    out.write_bytes("truth.csv", training_sim::truth_csv(&systems).as_bytes())?;
+    model_runs::write_simulation(&out, &spec, &systems)?;
     println!(
         "{} systems written to {} (answer key: truth.csv)",
         systems.len(),
@@ -71,92 +26,30 @@ pub fn simulate(args: SimulateArgs, quiet: bool) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// Simulate a spec and run every system through the labelling pipeline.
-fn analysed(
-    spec: &Spec,
-    settings: &AnalysisSettings,
-    quiet: bool,
-) -> anyhow::Result<(Vec<AnalysedSystem>, Vec<triage_pipeline::SkippedSystem>)> {
-    let systems = simulate_spec(spec, quiet)?;
-    let bar = Progress::new(quiet, systems.len() as u64, "cross maps");
-    let out = analyse_systems(&systems, settings, &bar.callback());
-    bar.finish();
-    Ok(out)
-}
-
 pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
-    let (spec, identity) = read_spec(&args.spec)?;
-    let settings = config::analysis_settings(&args.engine)?;
+    let observer = Terminal::new(quiet);
+    let (spec, identity) = model_runs::read_spec(&args.spec)?;
+    let engine = EngineSettings::from(&args.engine);
+    let settings = engine.analysis_settings()?;
     let out = OutputDir::create(&args.out)?;
-    let _lock = super::scan::lock_folder(&out)?;
+    let _lock = lock_folder(&out, &observer)?;
     let out = out.protect_inputs(&[&args.spec], &[])?;
-    let (systems, skipped) = analysed(&spec, &settings, quiet)?;
-    let set = triage_pipeline::training_set(&systems);
-    anyhow::ensure!(
-        !set.rows.is_empty(),
-        "spec {} produced no usable pairs; raise the counts or lengths in it",
-        args.spec.display()
-    );
-    eprintln!(
-        "fitting on {} pairs from {} systems ({} skipped)",
-        set.rows.len(),
-        systems.len(),
-        skipped.len()
-    );
-    let suite = match &args.suite {
-        Some(path) => {
-            let (suite_spec, suite_id) = read_spec(path)?;
-            let (suite_systems, _) = analysed(&suite_spec, &settings, quiet)?;
-            let suite_set = triage_pipeline::training_set(&suite_systems);
-            eprintln!(
-                "validation suite {}: {} pairs from {} systems",
-                suite_id.name,
-                suite_set.rows.len(),
-                suite_systems.len()
-            );
-            Some((suite_set, suite_id.name))
-        }
-        None => None,
-    };
-    let cfg = FitConfig {
-        seed: args.engine.seed,
-        curve_only_names: ensemble_features::curve_only_names()
-            .into_iter()
-            .map(String::from)
-            .collect(),
-        spec: identity,
-        suite_name: suite.as_ref().map(|s| s.1.clone()).unwrap_or_default(),
-        ..FitConfig::default()
-    };
-    let bundle = verdict_model::fit_with_suite(&set, suite.as_ref().map(|s| &s.0), &cfg)?;
-    let bytes = bundle.to_bytes()?;
-    let card = bundle.card();
-    out.write_bytes("model-card.md", card.to_markdown().as_bytes())?;
-    out.write_bytes("model-card.json", card.to_json()?.as_bytes())?;
-    out.write_bytes(
-        "reliability.svg",
-        card.reliability_svg(Head::Full)?.as_bytes(),
+    let trained = model_runs::train_spec(
+        &args.spec,
+        &spec,
+        identity,
+        args.suite.as_deref(),
+        &engine,
+        &settings,
+        &observer,
     )?;
-    out.export(&CsvTable {
-        name: "skipped-systems.csv".into(),
-        header: vec!["system".into(), "reason".into()],
-        rows: skipped
-            .iter()
-            .map(|s| vec![s.id.clone(), s.reason.clone()])
-            .collect(),
-    })?;
-    out.export(&training_table(&set))?;
-    out.export(&JsonDocument {
-        name: "training-settings.json".into(),
-        value: &super::scan::analysis_settings_json(&settings),
-    })?;
-    // model.bin last: its presence marks a finished training run.
-    out.write_bytes("model.bin", &bytes)?;
+    model_runs::write_trained(&out, &trained)?;
     println!(
         "model written to {} (sha256 {})",
         args.out.join("model.bin").display(),
-        verdict_model::sha256_hex(&bytes)
+        verdict_model::sha256_hex(&trained.bytes)
     );
+    let card = trained.bundle.card();
     let judged = if card.suite.is_some() {
         "validation suite"
     } else {
@@ -176,163 +69,21 @@ pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// `training-set.csv`: every training row with its system, family and label, so a fit can be
-/// inspected or repeated without simulating again.
-fn training_table(set: &verdict_model::TrainingSet) -> CsvTable {
-    let mut header = vec!["system".to_string(), "family".into(), "label".into()];
-    header.extend(set.feature_names.iter().cloned());
-    let rows = (0..set.rows.len())
-        .map(|i| {
-            let mut row = vec![
-                set.systems[i].clone(),
-                set.families[i].clone(),
-                set.labels[i].as_str().to_string(),
-            ];
-            row.extend(
-                set.rows[i]
-                    .iter()
-                    .map(|v| v.map(series_io::format_f64).unwrap_or_default()),
-            );
-            row
-        })
-        .collect();
-    CsvTable {
-        name: "training-set.csv".into(),
-        header,
-        rows,
-    }
-}
-
 pub fn evaluate(args: EvaluateArgs, quiet: bool) -> anyhow::Result<()> {
+    let observer = Terminal::new(quiet);
     let model = model::load(args.model.as_deref())?;
-    let (spec, _) = read_spec(&args.spec)?;
-    let settings = config::analysis_settings(&args.engine)?;
-    let policy = VerdictPolicy {
-        band: config::parse_band(&args.review_band)?,
-        ..VerdictPolicy::default()
-    };
-    let (systems, skipped) = analysed(&spec, &settings, quiet)?;
-    let (mut p, mut labels, mut families, mut review, mut rule) =
-        (vec![], vec![], vec![], vec![], vec![]);
-    let mut rows = Vec::new();
-    for s in &systems {
-        let judgements = judge(&s.pairs, &model.bundle, &policy)?;
-        for ((rec, j), label) in s.pairs.iter().zip(&judgements).zip(&s.labels) {
-            if j.p_causal.is_nan() {
-                continue;
-            }
-            let by_rule = rule_of_thumb(rec);
-            rows.push(vec![
-                s.id.clone(),
-                rec.driver.to_string(),
-                rec.response.to_string(),
-                label.as_str().to_string(),
-                format!("{:.4}", j.p_causal),
-                j.verdict.as_str().to_string(),
-                verdict_model::reasons_field(&j.reasons),
-                if by_rule { "causal" } else { "non-causal" }.to_string(),
-            ]);
-            p.push(j.p_causal);
-            labels.push(*label);
-            families.push(s.family.clone());
-            review.push(j.verdict == Verdict::Review);
-            rule.push(if by_rule { 1.0 } else { 0.0 });
-        }
-    }
-    anyhow::ensure!(
-        !p.is_empty(),
-        "no pair of spec {} could be scored",
-        args.spec.display()
+    let engine = EngineSettings::from(&args.engine);
+    let policy = policy(&args.review_band)?;
+    let e = model_runs::evaluate(&model, &args.spec, &engine, &policy, &observer)?;
+    print!(
+        "{}",
+        model_runs::comparison_table(&e.model, &e.rule_of_thumb, e.skipped)
     );
-    let ours = summarise(&p, &labels, &families, &review);
-    let no_review = vec![false; rule.len()];
-    let baseline = summarise(&rule, &labels, &families, &no_review);
-    print!("{}", comparison_table(&ours, &baseline, skipped.len()));
     if let Some(dir) = &args.out {
         let out = OutputDir::create(dir)?;
-        out.export(&CsvTable {
-            name: "predictions.csv".into(),
-            header: [
-                "system",
-                "driver_index",
-                "response_index",
-                "truth",
-                "p_causal",
-                "verdict",
-                "reasons",
-                "rule_of_thumb",
-            ]
-            .iter()
-            .map(|s| s.to_string())
-            .collect(),
-            rows,
-        })?;
-        out.export(&CsvTable {
-            name: "evaluated-set.csv".into(),
-            ..training_table(&triage_pipeline::training_set(&systems))
-        })?;
-        out.export(&JsonDocument {
-            name: "metrics.json".into(),
-            value: &serde_json::json!({"model": ours, "rule_of_thumb": baseline,
-                "model_sha256": model.sha256, "skipped_systems": skipped.len()}),
-        })?;
+        model_runs::write_evaluation(&out, &e)?;
     }
     Ok(())
-}
-
-fn comparison_table(ours: &Summary, rule: &Summary, skipped: usize) -> String {
-    let f = |v: Option<f64>| v.map_or("n/a".to_string(), |x| format!("{x:.3}"));
-    let mut s = format!(
-        "{} pairs ({} causal), {} systems skipped\n{:<42} {:>10} {:>14}\n",
-        ours.n, ours.n_causal, skipped, "metric", "model", "rule of thumb"
-    );
-    let lines: [(&str, Option<f64>, Option<f64>); 10] = [
-        ("ROC AUC", ours.roc_auc, rule.roc_auc),
-        (
-            "accuracy (p >= 0.5)",
-            Some(ours.accuracy),
-            Some(rule.accuracy),
-        ),
-        ("Brier score", Some(ours.brier), Some(rule.brier)),
-        ("expected calibration error", Some(ours.ece), Some(rule.ece)),
-        ("log-loss", Some(ours.log_loss), Some(rule.log_loss)),
-        (
-            "false-positive rate, confounded (p >= 0.5)",
-            ours.fpr_confounded,
-            rule.fpr_confounded,
-        ),
-        (
-            "recall, direct (p >= 0.5)",
-            ours.recall_direct,
-            rule.recall_direct,
-        ),
-        (
-            "false-positive rate, confounded (verdict)",
-            ours.fpr_confounded_verdict,
-            rule.fpr_confounded_verdict,
-        ),
-        (
-            "recall, direct (verdict)",
-            ours.recall_direct_verdict,
-            rule.recall_direct_verdict,
-        ),
-        (
-            "review rate",
-            Some(ours.review_rate),
-            Some(rule.review_rate),
-        ),
-    ];
-    for (name, a, b) in lines {
-        s.push_str(&format!("{name:<42} {:>10} {:>14}\n", f(a), f(b)));
-    }
-    s.push_str("accuracy per family (model / rule of thumb):\n");
-    for (a, b) in ours.per_family.iter().zip(&rule.per_family) {
-        s.push_str(&format!(
-            "  {:<24} n={:<6} {:.3} / {:.3}\n",
-            a.family, a.n, a.accuracy, b.accuracy
-        ));
-    }
-    s
 }
 
 pub fn model_card(args: ModelCardArgs) -> anyhow::Result<()> {

@@ -11,13 +11,23 @@
 //! Units can be saved and reloaded losslessly ([`units`]) for sharded and resumable runs.
 //!
 //! Training feeds simulated systems through exactly the same three stages ([`training_set`]).
+//!
+//! Whole runs, as the command line and the Python module make them, are driven from here too:
+//! [`orchestration`] (scan, merge, resume, label: from a table to the result files, with
+//! [`settings`] as given by the user, [`tables`] as written, [`model_source`] for the model)
+//! and [`model_runs`] (simulate, train, evaluate).
 #![deny(missing_docs)]
 
 mod assemble;
 pub mod estimate;
 mod judge;
+pub mod model_runs;
+pub mod model_source;
+pub mod orchestration;
 mod quality;
 mod report_view;
+pub mod settings;
+pub mod tables;
 mod training;
 pub mod units;
 
@@ -27,7 +37,8 @@ pub use judge::{Judgement, judge, rule_of_thumb};
 pub use quality::{QualityThresholds, quality_flags};
 pub use report_view::{KEY_FEATURES, RunFacts, report_view};
 pub use training::{
-    AnalysedSystem, SkippedSystem, analyse_systems, fine_label, series_of, training_set,
+    AnalysedSystem, SkippedSystem, analyse_systems, analyse_systems_until, fine_label, series_of,
+    training_set,
 };
 
 use crossmap_engine::{CrossMapParams, Embedding, EmbeddingSettings, PairEnsemble, ValidParams};

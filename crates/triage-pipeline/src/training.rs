@@ -4,6 +4,7 @@ use rayon::prelude::*;
 use training_sim::{Label, System};
 use verdict_model::{FineLabel, TrainingSet};
 
+use crate::orchestration::Cancelled;
 use crate::{AnalysisSettings, PairRecord, PipelineError, SeriesSet, analyse};
 
 /// A simulated system the pipeline could not analyse, kept for the record (model card).
@@ -54,15 +55,29 @@ pub fn analyse_systems(
     settings: &AnalysisSettings,
     progress: &(dyn Fn(usize) + Sync),
 ) -> (Vec<AnalysedSystem>, Vec<SkippedSystem>) {
+    analyse_systems_until(systems, settings, progress, &|| false).expect("never asked to stop")
+}
+
+/// [`analyse_systems`] that stops with [`Cancelled`] once `stop` returns true (it is asked
+/// before each system).
+pub fn analyse_systems_until(
+    systems: &[System],
+    settings: &AnalysisSettings,
+    progress: &(dyn Fn(usize) + Sync),
+    stop: &(dyn Fn() -> bool + Sync),
+) -> Result<(Vec<AnalysedSystem>, Vec<SkippedSystem>), Cancelled> {
     let done = std::sync::atomic::AtomicUsize::new(0);
     let results: Vec<Result<AnalysedSystem, SkippedSystem>> = systems
         .par_iter()
         .map(|system| {
+            if stop() {
+                return Err(Cancelled);
+            }
             let out = analyse_system(system, settings);
             progress(done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1);
-            out
+            Ok(out)
         })
-        .collect();
+        .collect::<Result<_, Cancelled>>()?;
     let mut analysed = Vec::new();
     let mut skipped = Vec::new();
     for r in results {
@@ -71,7 +86,7 @@ pub fn analyse_systems(
             Err(s) => skipped.push(s),
         }
     }
-    (analysed, skipped)
+    Ok((analysed, skipped))
 }
 
 fn analyse_system(

@@ -1,4 +1,4 @@
-//! The model a command uses: a file named by `--model`, or the one built into the binary.
+//! The model a run uses: a file named by the user, or the one built into this library.
 
 use std::path::Path;
 
@@ -6,9 +6,9 @@ use anyhow::Context;
 use verdict_model::ModelBundle;
 
 /// The shipped model (trained by `ccm-triage train training-sim/specs/default.toml`).
-const BUILT_IN: &[u8] = include_bytes!(concat!(
+pub const BUILT_IN: &[u8] = include_bytes!(concat!(
     env!("CARGO_MANIFEST_DIR"),
-    "/models/default-model.bin"
+    "/../../models/default-model.bin"
 ));
 
 /// A loaded model and how to name it in outputs.
@@ -60,5 +60,15 @@ pub fn load(path: Option<&Path>) -> anyhow::Result<LoadedModel> {
         bundle,
         source,
         sha256: verdict_model::sha256_hex(&bytes),
+    })
+}
+
+/// The model's identity as run.json records it.
+pub fn model_record(model: &LoadedModel) -> serde_json::Value {
+    serde_json::json!({
+        "source": model.source,
+        "sha256": model.sha256,
+        "training_spec": {"name": model.bundle.spec.name, "hash": model.bundle.spec.hash},
+        "schema_hash": model.bundle.schema_hash,
     })
 }

@@ -1,8 +1,8 @@
-//! The result tables of `scan` and `label`, as exportable files (formats in the README).
+//! The result tables of a labelling run, as exportable files (formats in the README).
 
+use crate::{Judgement, PairRecord};
 use crossmap_engine::Embedding;
 use series_io::{CsvTable, Export, format_f64, write_csv_rows};
-use triage_pipeline::{Judgement, PairRecord};
 
 /// Names as written into CSV files: a name that begins with `=`, `+`, `-`, `@`, a tab or a
 /// carriage return gets a leading `'`, so a spreadsheet shows it as text instead of running
