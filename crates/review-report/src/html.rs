@@ -406,16 +406,24 @@ fn embedding_table(out: &mut String, data: &ReportData) {
     out.push_str(
         "<div class=\"scroll\"><table id=\"embedding\"><thead><tr><th>variable</th>\
          <th title=\"embedding dimension\">E</th><th title=\"delay between coordinates, time steps\">&tau;</th>\
-         <th title=\"simplex projection forecast skill at the chosen E and tau\">forecast skill</th></tr></thead><tbody>",
+         <th title=\"simplex projection forecast skill at the chosen E and tau\">forecast skill</th>\
+         <th title=\"period of the dominant cycle, time steps\">cycle</th>\
+         <th title=\"share of variance carried by the mean cycle by phase (adjusted R squared)\">cycle strength</th>\
+         <th title=\"whether the cycle counts as a season (period of at least 4 steps, strength of at least 0.1), so the seasonal surrogates keep it\">season</th></tr></thead><tbody>",
     );
     for e in &data.embeddings {
         put!(
             out,
-            "<tr><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td></tr>",
+            "<tr><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td>\
+             <td class=\"num\">{}</td><td class=\"num\">{}</td><td>{}</td></tr>",
             esc(&e.variable),
             e.e,
             e.tau,
-            fmt_value(Some(e.simplex_skill))
+            fmt_value(Some(e.simplex_skill)),
+            e.cycle
+                .map_or("none".to_string(), |(p, _)| format!("{p:.1}")),
+            fmt_value(e.cycle.map(|(_, s)| s)),
+            if e.season { "yes" } else { "no" }
         );
     }
     out.push_str("</tbody></table></div></div>\n");

@@ -36,6 +36,11 @@ pub struct EmbeddingRow {
     pub tau: usize,
     /// Simplex projection forecast skill at the chosen `e` and `tau`.
     pub simplex_skill: f64,
+    /// The variable's dominant cycle as its seasonal surrogates used it: period in time steps
+    /// and strength (share of variance carried by the mean cycle); `None` when none was found.
+    pub cycle: Option<(f64, f64)>,
+    /// Whether that cycle counts as a season, so that its seasonal surrogates keep it.
+    pub season: bool,
 }
 
 /// The label a pair received.

@@ -35,7 +35,7 @@ pub use assemble::{PairRecord, assemble, assemble_curves, cycles};
 pub use estimate::WorkEstimate;
 pub use judge::{Judgement, judge, rule_of_thumb};
 pub use quality::{QualityThresholds, quality_flags};
-pub use report_view::{KEY_FEATURES, RunFacts, report_view};
+pub use report_view::{CycleFact, KEY_FEATURES, RunFacts, cycle_facts, report_view};
 pub use training::{
     AnalysedSystem, SkippedSystem, analyse_systems, analyse_systems_until, fine_label, series_of,
     training_set,

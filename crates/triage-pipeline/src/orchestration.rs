@@ -27,8 +27,8 @@ use crate::settings::{EngineSettings, analysis_settings_json};
 use crate::tables;
 use crate::units::{self, InputIdentity, ShardSpec, StoreManifest, UnitStore};
 use crate::{
-    AnalysisSettings, Judgement, PairRecord, QualityThresholds, RunFacts, SeriesSet,
-    assemble_curves, judge, report_view,
+    AnalysisSettings, CycleFact, Judgement, PairRecord, QualityThresholds, RunFacts, SeriesSet,
+    assemble_curves, cycle_facts, judge, report_view,
 };
 
 /// Version written into run.json and manifests as the tool's version.
@@ -427,6 +427,7 @@ pub fn finish(
     let pairs = crate::assemble(&p.series, &p.embeddings, ensembles, &p.settings);
     let judgements = judge(&pairs, &model.bundle, policy)?;
     let table = &p.table;
+    let cycles = cycle_facts(&p.series, &p.settings);
     let mut run = serde_json::json!({
         "tool": "ccm-triage",
         "version": TOOL_VERSION,
@@ -442,7 +443,7 @@ pub fn finish(
         },
         "settings": p.manifest.settings,
         "embedding": embedding_record(&p.series.names, &p.embeddings),
-        "cycles": cycles_record(&p.series, &p.settings),
+        "cycles": cycles_record(&p.series.names, &cycles),
         "model": model_record(model),
         "review_band": [policy.band.0, policy.band.1],
         "feature_schema": {"version": ensemble_features::SCHEMA_VERSION, "hash": ensemble_features::schema_hash()},
@@ -459,6 +460,7 @@ pub fn finish(
         model_identity: model.identity_line(),
         params: p.engine.display(policy),
         notes: missing_notes(&table.names, &table.missing, &p.embeddings),
+        cycles,
     };
     Ok(Finished {
         names: p.series.names.clone(),
@@ -551,6 +553,7 @@ fn label_records(
              curve-only model head scored these pairs (no lag profile, surrogates or series context)."
                 .into(),
         ],
+        cycles: Vec::new(),
     };
     Ok(Finished {
         names,
@@ -656,17 +659,16 @@ pub fn settings_record(
 }
 
 /// Each variable's dominant cycle as the seasonal surrogates used it (strength 0: no season).
-fn cycles_record(series: &SeriesSet, settings: &AnalysisSettings) -> serde_json::Value {
-    series
-        .names
+fn cycles_record(names: &[String], cycles: &[CycleFact]) -> serde_json::Value {
+    names
         .iter()
-        .zip(crate::cycles(series, settings.crossmap.period))
+        .zip(cycles)
         .map(|(n, c)| {
             serde_json::json!({
                 "variable": n,
-                "period": c.map(|c| c.period),
-                "strength": c.map(|c| c.strength),
-                "season": c.is_some_and(|c| c.has_cycle()) && settings.crossmap.seasonal,
+                "period": c.cycle.map(|c| c.0),
+                "strength": c.cycle.map(|c| c.1),
+                "season": c.season,
             })
         })
         .collect()

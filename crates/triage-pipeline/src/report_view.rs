@@ -34,6 +34,32 @@ pub struct RunFacts {
     pub params: Vec<(String, String)>,
     /// Run-level notes.
     pub notes: Vec<String>,
+    /// Each variable's dominant cycle in column order (empty when no series were read).
+    pub cycles: Vec<CycleFact>,
+}
+
+/// One variable's dominant cycle as its seasonal surrogates used it; `run.json` (`cycles`)
+/// and the report both show these.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct CycleFact {
+    /// Period in time steps and strength (adjusted R² of the mean cycle), when one was found.
+    pub cycle: Option<(f64, f64)>,
+    /// Whether the cycle counts as a season and seasonal surrogates are on.
+    pub season: bool,
+}
+
+/// The cycle facts of every variable, in column order.
+pub fn cycle_facts(
+    series: &crate::SeriesSet,
+    settings: &crate::AnalysisSettings,
+) -> Vec<CycleFact> {
+    crate::cycles(series, settings.crossmap.period)
+        .into_iter()
+        .map(|c| CycleFact {
+            cycle: c.map(|c| (c.period, c.strength)),
+            season: c.is_some_and(|c| c.has_cycle()) && settings.crossmap.seasonal,
+        })
+        .collect()
 }
 
 /// Each reason with its explanation; a review pair whose probability alone would have decided
@@ -123,7 +149,10 @@ pub fn report_view(
         embeddings: names
             .iter()
             .zip(embeddings)
-            .map(|(v, e)| EmbeddingRow {
+            .enumerate()
+            .map(|(i, (v, e))| EmbeddingRow {
+                cycle: facts.cycles.get(i).and_then(|c| c.cycle),
+                season: facts.cycles.get(i).is_some_and(|c| c.season),
                 variable: v.clone(),
                 e: e.e,
                 tau: e.tau,

@@ -144,6 +144,8 @@ pub fn report(names: &[String], seed: u64, skip: Option<(usize, usize)>) -> Repo
         .iter()
         .enumerate()
         .map(|(i, v)| EmbeddingRow {
+            cycle: (i == 0).then_some((12.0, 0.42)),
+            season: i == 0,
             variable: v.clone(),
             e: 2 + i % 4,
             tau: 1 + i % 2,
