@@ -118,6 +118,12 @@ pub(crate) struct Scratch {
     pairs: FinitePairs,
     acc: Vec<f64>,
     multi: Vec<FinitePairs>,
+    /// Estimates of every target, one row per predicted position (the fused fast path).
+    est_rows: Vec<f64>,
+    /// Time of each row of `est_rows`.
+    row_times: Vec<usize>,
+    /// Per-target sums of the fast path: estimates, observations, then the centred products.
+    sums: [Vec<f64>; 5],
 }
 
 /// Driver values laid out time-major (`vals[t * count + j]`), so one neighbour's values for every
@@ -125,6 +131,8 @@ pub(crate) struct Scratch {
 pub(crate) struct TimeMajor {
     count: usize,
     vals: Vec<f64>,
+    /// Every value finite: the fused skills take their fast path.
+    all_finite: bool,
 }
 
 impl TimeMajor {
@@ -137,7 +145,12 @@ impl TimeMajor {
                 vals[t * count + j] = if v.is_finite() { v } else { f64::NAN };
             }
         }
-        Self { count, vals }
+        let all_finite = vals.iter().all(|v| v.is_finite());
+        Self {
+            count,
+            vals,
+            all_finite,
+        }
     }
 }
 
@@ -254,6 +267,11 @@ impl Table {
     ) -> Vec<f64> {
         let m = index.manifold();
         let (k, dn) = (self.k, tm.count);
+        if tm.all_finite
+            && let Some(r) = self.skills_fast(m, tm, s)
+        {
+            return r;
+        }
         s.multi.resize_with(dn, FinitePairs::default);
         s.multi.iter_mut().for_each(FinitePairs::clear);
         s.acc.clear();
@@ -289,6 +307,76 @@ impl Table {
             }
         }
         (0..dn).map(|d| s.multi[d].r()).collect()
+    }
+
+    /// [`Table::skills_fused`] when every target value is finite: the estimates of all
+    /// targets are kept as rows, and Pearson's two passes run over the rows with one sum per
+    /// target, so each target's sums are the same additions in the same order as
+    /// [`FinitePairs`]' (bit-identical) while the loops run across targets. `None` when an
+    /// estimate is not finite (then the general path decides).
+    fn skills_fast(&self, m: &Manifold, tm: &TimeMajor, s: &mut Scratch) -> Option<Vec<f64>> {
+        let (k, dn) = (self.k, tm.count);
+        s.est_rows.clear();
+        s.row_times.clear();
+        for q in 0..m.len() {
+            if !self.full[q] {
+                continue;
+            }
+            let start = s.est_rows.len();
+            s.est_rows.resize(start + dn, 0.0);
+            let acc = &mut s.est_rows[start..];
+            for j in 0..k {
+                let w = self.weight[q * k + j];
+                let t = m.time(self.pos[q * k + j] as usize);
+                let row = &tm.vals[t * dn..(t + 1) * dn];
+                for (a, &v) in acc.iter_mut().zip(row) {
+                    *a += w * v;
+                }
+            }
+            s.row_times.push(m.time(q));
+        }
+        if !s.est_rows.iter().all(|v| v.is_finite()) {
+            return None;
+        }
+        let rows = s.row_times.len();
+        if rows < 2 {
+            return Some(vec![f64::NAN; dn]);
+        }
+        for v in s.sums.iter_mut() {
+            v.clear();
+            v.resize(dn, 0.0);
+        }
+        let [sa, sb, sxx, syy, sxy] = &mut s.sums;
+        for (est, &t) in s.est_rows.chunks_exact(dn).zip(&s.row_times) {
+            let obs = &tm.vals[t * dn..(t + 1) * dn];
+            for d in 0..dn {
+                sa[d] += est[d];
+                sb[d] += obs[d];
+            }
+        }
+        let nf = rows as f64;
+        sa.iter_mut().for_each(|v| *v /= nf);
+        sb.iter_mut().for_each(|v| *v /= nf);
+        for (est, &t) in s.est_rows.chunks_exact(dn).zip(&s.row_times) {
+            let obs = &tm.vals[t * dn..(t + 1) * dn];
+            for d in 0..dn {
+                let (dx, dy) = (est[d] - sa[d], obs[d] - sb[d]);
+                sxx[d] += dx * dx;
+                syy[d] += dy * dy;
+                sxy[d] += dx * dy;
+            }
+        }
+        Some(
+            (0..dn)
+                .map(|d| {
+                    if sxx[d] <= 0.0 || syy[d] <= 0.0 {
+                        f64::NAN
+                    } else {
+                        (sxy[d] / (sxx[d].sqrt() * syy[d].sqrt())).clamp(-1.0, 1.0)
+                    }
+                })
+                .collect(),
+        )
     }
 
     pub(crate) fn skill(
@@ -470,6 +558,9 @@ impl DriverBasis {
     }
 }
 
+/// Surrogate series per fused pass over a table.
+const SURROGATE_BLOCK: usize = 16;
+
 /// Every ordered pair whose response is `response`: one work unit (one manifold's tables).
 ///
 /// Returns one [`PairEnsemble`] per driver `d != response`, in increasing `d`. Neighbour tables
@@ -584,32 +675,42 @@ pub fn cross_map_response(
             }
         };
         let per = 2 * raw.surrogates;
-        let all: Vec<f64> = (0..drivers.len() * per)
-            .into_par_iter()
-            .map_init(Scratch::default, |s, u| {
-                let (di, j) = (u / per, u % per);
-                let d = drivers[di];
-                let basis = bases[di];
-                let surrogate = if j < raw.surrogates {
-                    let mut rng =
-                        keyed_rng(&[TAG_SURROGATE, raw.seed, d as u64, response as u64, j as u64]);
-                    maker.draw(&basis.plain, &mut rng)
-                } else {
-                    let j = (j - raw.surrogates) as u64;
-                    let mut rng =
-                        keyed_rng(&[TAG_SEASONAL, raw.seed, d as u64, response as u64, j]);
-                    // Without a cycle to keep, a seasonal surrogate is a phase-randomised one.
-                    match &basis.seasonal {
-                        Some(seasonal) => maker.draw_seasonal(seasonal, &mut rng),
-                        None => maker.draw(&basis.plain, &mut rng),
-                    }
-                };
-                let per_table: Vec<f64> = tables
+        let draw = |u: usize| {
+            let (di, j) = (u / per, u % per);
+            let d = drivers[di];
+            let basis = bases[di];
+            if j < raw.surrogates {
+                let mut rng =
+                    keyed_rng(&[TAG_SURROGATE, raw.seed, d as u64, response as u64, j as u64]);
+                maker.draw(&basis.plain, &mut rng)
+            } else {
+                let j = (j - raw.surrogates) as u64;
+                let mut rng = keyed_rng(&[TAG_SEASONAL, raw.seed, d as u64, response as u64, j]);
+                // Without a cycle to keep, a seasonal surrogate is a phase-randomised one.
+                match &basis.seasonal {
+                    Some(seasonal) => maker.draw_seasonal(seasonal, &mut rng),
+                    None => maker.draw(&basis.plain, &mut rng),
+                }
+            }
+        };
+        // Surrogates in blocks: each block's series are targets of one fused pass per table
+        // (the same skills, bit for bit, as one pass per surrogate).
+        let units: Vec<usize> = (0..drivers.len() * per).collect();
+        let all: Vec<f64> = units
+            .par_chunks(SURROGATE_BLOCK)
+            .map_init(Scratch::default, |s, block| {
+                let series_block: Vec<Vec<f64>> = block.iter().map(|&u| draw(u)).collect();
+                let columns: Vec<&[f64]> = series_block.iter().map(Vec::as_slice).collect();
+                let tm = TimeMajor::new(&columns);
+                let per_table: Vec<Vec<f64>> = tables
                     .iter()
-                    .map(|(lib, table)| table.skill(index, lib, &surrogate, 0, s))
+                    .map(|(lib, table)| table.skills_fused(index, lib, &columns, &tm, s))
                     .collect();
-                finite_mean(&per_table)
+                (0..block.len())
+                    .map(|i| finite_mean(&per_table.iter().map(|t| t[i]).collect::<Vec<_>>()))
+                    .collect::<Vec<f64>>()
             })
+            .flatten()
             .collect();
         let (mut plain, mut seasonal) = (Vec::new(), Vec::new());
         for chunk in all.chunks(per) {
@@ -718,6 +819,33 @@ mod tests {
         }
         simplex_weights(&nb(&[0.0, 0.0, 0.5]), &mut w);
         assert_eq!(w, vec![0.5, 0.5, 0.0]);
+    }
+
+    /// The fused fast path (every value finite) against one [`Table::skill`] per target.
+    #[test]
+    fn fused_skills_equal_one_target_at_a_time_bit_for_bit() {
+        let n = 500;
+        let (mut x, mut y) = (vec![0.4], vec![0.2]);
+        for t in 0..n - 1 {
+            x.push(x[t] * (3.8 - 3.8 * x[t]));
+            y.push(y[t] * (3.5 - 3.5 * y[t] - 0.1 * x[t]));
+        }
+        let z: Vec<f64> = x.iter().zip(&y).map(|(a, b)| a * b + 0.3 * a).collect();
+        let m = Manifold::new(&y, 3, 1).unwrap();
+        let scan = ExactScan::new(&m, 2);
+        let columns: Vec<&[f64]> = vec![&x, &z, &y];
+        let tm = TimeMajor::new(&columns);
+        assert!(tm.all_finite);
+        let mut s = Scratch::default();
+        for l in [6usize, 40, m.len()] {
+            let lib = draw_library(3, 1, l, 0, m.len());
+            let table = Table::build(&scan, &lib, 4, &mut s);
+            let fused = table.skills_fused(&scan, &lib, &columns, &tm, &mut s);
+            for (c, f) in columns.iter().zip(&fused) {
+                let one = table.skill(&scan, &lib, c, 0, &mut s);
+                assert_eq!(one.to_bits(), f.to_bits(), "L={l}");
+            }
+        }
     }
 
     #[test]
