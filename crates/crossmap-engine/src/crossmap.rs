@@ -566,8 +566,10 @@ const SURROGATE_BLOCK: usize = 16;
 /// Returns one [`PairEnsemble`] per driver `d != response`, in increasing `d`. Neighbour tables
 /// are built once per (library size, replicate) and reused for every driver, lag and surrogate;
 /// rayon runs across (size, replicate) items; every random draw is keyed, so results are
-/// bit-identical for any thread count. When a size equals the usable length every replicate
-/// library is the whole manifold, so that table is built once and its skill repeated.
+/// bit-identical for any thread count. Replicate convention: when a size equals the usable
+/// length every replicate library is the whole manifold, so that table is built and scored once
+/// and its skill is repeated for each of the R replicates (the ensemble keeps R members at every
+/// size; their spread there is exactly zero).
 ///
 /// # Panics
 /// When `params` was not validated for these `series` and `embeddings`.
