@@ -1,10 +1,15 @@
 //! Criterion benchmarks: the neighbour kernel (exact scan vs sorted-list walk across library
-//! sizes) and a whole `cross_map_all` on 4 variables x 1000 points, 10 sizes x 100 replicates.
+//! sizes), the full-library search behind choosing E (exact scan vs k-d tree) and a whole
+//! `cross_map_all` on 4 variables x 1000 points, 10 sizes x 100 replicates. The side-by-side
+//! benchmark against a numpy + scipy reference is `reference/side_by_side.py` (see the README).
 
 use criterion::{BenchmarkId, Criterion, criterion_group, criterion_main};
-use crossmap_engine::neighbours::{ExactScan, NeighbourIndex, SortedLists, walk_depth};
+use crossmap_engine::neighbours::{
+    ExactScan, KdTree, Library, NeighbourIndex, SortedLists, walk_depth,
+};
 use crossmap_engine::{
     CrossMapParams, Embedding, LibrarySizes, Manifold, cross_map_all, draw_library,
+    simplex_forecast,
 };
 use std::hint::black_box;
 
@@ -51,6 +56,33 @@ fn kernel(c: &mut Criterion) {
     });
 }
 
+/// The full-library search behind choosing E: exact scan against the k-d tree, and the simplex
+/// forecast that uses the tree.
+fn full_library(c: &mut Criterion) {
+    let x = &chain(1, 4000)[0];
+    let mut g = c.benchmark_group("full_library_4000pts");
+    g.sample_size(10);
+    for e in [2usize, 5, 8] {
+        let m = Manifold::new(x, e, 1).unwrap();
+        let all = Library::all(m.len());
+        let w = e - 1;
+        let (scan, tree) = (ExactScan::new(&m, w), KdTree::new(&m, w));
+        for (name, index) in [("scan", &scan as &dyn NeighbourIndex), ("kdtree", &tree)] {
+            g.bench_with_input(BenchmarkId::new(name, e), &e, |b, _| {
+                let (mut rows, mut full) = (Vec::new(), Vec::new());
+                b.iter(|| {
+                    index.nearest_every(&all, e + 1, &mut rows, &mut full);
+                    black_box(&rows);
+                })
+            });
+        }
+        g.bench_with_input(BenchmarkId::new("simplex_forecast", e), &e, |b, _| {
+            b.iter(|| black_box(simplex_forecast(x, e, 1, 1, w).unwrap()))
+        });
+    }
+    g.finish();
+}
+
 fn whole(c: &mut Criterion) {
     let series = chain(4, 1000);
     let emb: Vec<Embedding> = (0..4)
@@ -75,5 +107,5 @@ fn whole(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(benches, kernel, whole);
+criterion_group!(benches, kernel, full_library, whole);
 criterion_main!(benches);

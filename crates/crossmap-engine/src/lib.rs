@@ -46,6 +46,7 @@
 
 mod crossmap;
 mod embed;
+mod kdtree;
 pub mod neighbours;
 mod params;
 pub mod season;
@@ -55,8 +56,8 @@ mod stats;
 pub mod surrogate;
 
 pub use crossmap::{
-    CrossMapEstimate, cross_map_all, cross_map_response, cross_map_with_library, draw_library,
-    simplex_weights,
+    CrossMapEstimate, SurrogateBases, cross_map_all, cross_map_response, cross_map_with_library,
+    draw_library, simplex_weights,
 };
 pub use embed::{
     DEFAULT_MAX_E, Embedding, EmbeddingSettings, MAX_AUTO_TAU, MIN_AUTO_E, Manifold,

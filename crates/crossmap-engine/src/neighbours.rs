@@ -6,6 +6,7 @@
 //! window, `|t - t_query| <= window` (Theiler 1986).
 
 use crate::embed::{Manifold, sq_dist};
+pub use crate::kdtree::KdTree;
 use rayon::prelude::*;
 
 /// One neighbour: its manifold position and Euclidean distance to the query.
@@ -442,33 +443,45 @@ impl<'m> SortedLists<'m> {
         let n = manifold.len();
         let depth = depth.clamp(1, n.max(1));
         let mut lists = vec![0u32; n * depth];
-        let lens: Vec<u32> = lists
-            .par_chunks_mut(depth)
-            .enumerate()
-            .map_init(Vec::new, |scratch: &mut Vec<u128>, (q, row)| {
-                // Key: the squared distance's bits above the position. Squared distances are
-                // non-negative (never -0.0 or NaN), so their bits order like their values and
-                // the integer order is exactly the (distance, position) rule.
-                scratch.clear();
-                let tq = manifold.time(q);
-                let qp = manifold.point(q);
-                for p in 0..n {
-                    if outside_window(tq, manifold.time(p), theiler) {
-                        let d2 = sq_dist(qp, manifold.point(p));
-                        scratch.push(u128::from(d2.to_bits()) << 32 | p as u128);
+        let lens: Vec<u32> = if tree_sorts(n, depth) {
+            let tree = KdTree::new(manifold, theiler);
+            lists
+                .par_chunks_mut(depth)
+                .enumerate()
+                .map_init(
+                    || (std::collections::BinaryHeap::new(), Vec::new()),
+                    |(heap, stack), (q, row)| tree.sorted_row(q, depth, row, heap, stack) as u32,
+                )
+                .collect()
+        } else {
+            lists
+                .par_chunks_mut(depth)
+                .enumerate()
+                .map_init(Vec::new, |scratch: &mut Vec<u128>, (q, row)| {
+                    // Key: the squared distance's bits above the position. Squared distances
+                    // are non-negative (never -0.0 or NaN), so their bits order like their
+                    // values and the integer order is exactly the (distance, position) rule.
+                    scratch.clear();
+                    let tq = manifold.time(q);
+                    let qp = manifold.point(q);
+                    for p in 0..n {
+                        if outside_window(tq, manifold.time(p), theiler) {
+                            let d2 = sq_dist(qp, manifold.point(p));
+                            scratch.push(u128::from(d2.to_bits()) << 32 | p as u128);
+                        }
                     }
-                }
-                let keep = depth.min(scratch.len());
-                if keep > 0 && keep < scratch.len() {
-                    scratch.select_nth_unstable(keep - 1);
-                }
-                scratch[..keep].sort_unstable();
-                for (slot, &key) in row.iter_mut().zip(&scratch[..keep]) {
-                    *slot = key as u32;
-                }
-                keep as u32
-            })
-            .collect();
+                    let keep = depth.min(scratch.len());
+                    if keep > 0 && keep < scratch.len() {
+                        scratch.select_nth_unstable(keep - 1);
+                    }
+                    scratch[..keep].sort_unstable();
+                    for (slot, &key) in row.iter_mut().zip(&scratch[..keep]) {
+                        *slot = key as u32;
+                    }
+                    keep as u32
+                })
+                .collect()
+        };
         Self {
             manifold,
             theiler,
@@ -606,6 +619,15 @@ impl NeighbourIndex for SortedLists<'_> {
         }
     }
 }
+
+/// Sort the lists with a k-d tree query per position (about `depth log N` work) rather than
+/// a scan and partial sort of every candidate (about `N` work): when the lists are shallow.
+fn tree_sorts(n: usize, depth: usize) -> bool {
+    depth * TREE_SORT_RATIO < n
+}
+
+/// See [`tree_sorts`]: measured on the side-by-side benchmark's workloads.
+const TREE_SORT_RATIO: usize = 8;
 
 /// Walk or scan? The walk costs about `k N / L` cheap steps (a mask test), the scan `L`
 /// candidates at roughly three times a step's cost (distance, window test, insertion; measured

@@ -1,7 +1,9 @@
 //! Cross-map parameters and their one-time validation against the data.
 
 use crate::EngineError;
+use crate::crossmap::SurrogateBases;
 use crate::embed::{Embedding, default_theiler};
+use std::sync::Arc;
 
 /// Default number of log-spaced library sizes.
 pub const DEFAULT_LIBRARY_COUNT: usize = 12;
@@ -90,6 +92,22 @@ pub struct ValidParams {
     pub n_points: usize,
     /// One plan per variable, used when that variable is the response.
     pub plans: Vec<ResponsePlan>,
+    /// Every variable's cycle and spectra, prepared once for the surrogates
+    /// ([`ValidParams::with_surrogate_bases`]); `None` prepares each driver inside each work
+    /// unit (the same results, more work).
+    pub surrogate_bases: Option<Arc<SurrogateBases>>,
+}
+
+impl ValidParams {
+    /// Prepare every variable's cycle, mean cycle and spectra once for these `series` (the
+    /// ones the parameters were validated for), so that no work unit repeats them. A no-op
+    /// without surrogates. Units given other series notice (by a fingerprint of the values)
+    /// and prepare their own.
+    pub fn with_surrogate_bases(mut self, series: &[Vec<f64>]) -> Self {
+        self.surrogate_bases =
+            (self.raw.surrogates > 0).then(|| Arc::new(SurrogateBases::new(series, &self.raw)));
+        self
+    }
 }
 
 impl CrossMapParams {
@@ -242,6 +260,7 @@ impl CrossMapParams {
             raw: self.clone(),
             n_points,
             plans,
+            surrogate_bases: None,
         })
     }
 }

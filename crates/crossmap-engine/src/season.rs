@@ -55,10 +55,106 @@ fn bins(period: f64, finite: usize) -> usize {
         .max(1)
 }
 
-/// Phase bin of sample `t`.
+/// Phase bin of sample `t`: `floor(B frac(t / p))`, with the phase taken as `fmod(t, p) / p`.
+#[cfg(test)]
 fn bin_of(t: usize, period: f64, b: usize) -> usize {
-    let phase = (t as f64 % period) / period;
+    bin_of_phase(t as f64 % period, period, b)
+}
+
+#[inline]
+fn bin_of_phase(fmod: f64, period: f64, b: usize) -> usize {
+    let phase = fmod / period;
     ((phase * b as f64 + 1e-9).floor() as usize).min(b - 1)
+}
+
+/// `fmod(t, period)` for `t = 0, 1, 2, ...`, exact to the last bit like the `%` operator but
+/// without a division per sample: the period is `m 2^x` with a whole number `m`, so
+/// `t mod period` is `(t 2^-x mod m) 2^x`, and the remainder is stepped by whole numbers.
+struct Remainders {
+    period: f64,
+    t: usize,
+    kind: RemainderKind,
+}
+
+enum RemainderKind {
+    /// A whole-number period `modulus` (below 2^63): `r = t mod modulus`.
+    Whole { modulus: u64, r: u64 },
+    /// A period of `m 2^-shift`: `r = t 2^shift mod m`, stepped by `inc = 2^shift mod m`.
+    Fraction {
+        m: u64,
+        inc: u64,
+        scale: f64,
+        r: u64,
+    },
+    /// Anything else (a period of 2^63 or more, subnormal or tiny): the `%` operator.
+    Plain,
+}
+
+impl Remainders {
+    fn new(period: f64) -> Self {
+        let bits = period.to_bits();
+        let exp = ((bits >> 52) & 0x7ff) as i64;
+        let kind = if !(period.is_finite() && period > 0.0) || exp == 0 {
+            RemainderKind::Plain
+        } else {
+            let m = (bits & ((1u64 << 52) - 1)) | (1u64 << 52);
+            let x = exp - 1075;
+            if (0..=10).contains(&x) {
+                RemainderKind::Whole {
+                    modulus: m << x,
+                    r: 0,
+                }
+            } else if (-62..0).contains(&x) {
+                let shift = (-x) as u32;
+                RemainderKind::Fraction {
+                    m,
+                    inc: ((1u128 << shift) % u128::from(m)) as u64,
+                    scale: f64::from_bits((1023 - u64::from(shift)) << 52),
+                    r: 0,
+                }
+            } else {
+                RemainderKind::Plain
+            }
+        };
+        Self { period, t: 0, kind }
+    }
+}
+
+impl Iterator for Remainders {
+    type Item = f64;
+
+    #[inline]
+    fn next(&mut self) -> Option<f64> {
+        let t = self.t;
+        self.t += 1;
+        Some(match &mut self.kind {
+            RemainderKind::Whole { modulus, r } => {
+                let v = *r as f64;
+                *r += 1;
+                if *r == *modulus {
+                    *r = 0;
+                }
+                v
+            }
+            RemainderKind::Fraction { m, inc, scale, r } => {
+                let v = *r as f64 * *scale;
+                *r += *inc;
+                if *r >= *m {
+                    *r -= *m;
+                }
+                v
+            }
+            RemainderKind::Plain => t as f64 % self.period,
+        })
+    }
+}
+
+/// The phase bin of every sample `0..len`, equal to `bin_of` sample by sample.
+fn phase_bins(len: usize, period: f64, b: usize) -> Vec<usize> {
+    Remainders::new(period)
+        .take(len)
+        .map(|r| bin_of_phase(r, period, b))
+        .collect()
 }
 
 /// The mean cycle at every sample: the mean of the finite values in the sample's phase bin
@@ -69,11 +165,11 @@ pub fn mean_cycle(x: &[f64], period: f64) -> Vec<f64> {
         return vec![0.0; x.len()];
     }
     let b = bins(period, finite);
+    let bin = phase_bins(x.len(), period, b);
     let mut sum = vec![0.0; b];
     let mut count = vec![0usize; b];
-    for (t, &v) in x.iter().enumerate() {
+    for (&v, &k) in x.iter().zip(&bin) {
         if v.is_finite() {
-            let k = bin_of(t, period, b);
             sum[k] += v;
             count[k] += 1;
         }
@@ -84,7 +180,7 @@ pub fn mean_cycle(x: &[f64], period: f64) -> Vec<f64> {
         .zip(&count)
         .map(|(&s, &c)| if c > 0 { s / c as f64 } else { overall })
         .collect();
-    (0..x.len()).map(|t| means[bin_of(t, period, b)]).collect()
+    bin.iter().map(|&k| means[k]).collect()
 }
 
 /// Strength of the cycle with this period (adjusted R² of the mean cycle by phase).
@@ -218,6 +314,41 @@ mod tests {
         let s = season_for(&x[100..], None).unwrap();
         assert!(s.period >= MIN_PERIOD, "{s:?}");
         assert!(!s.has_cycle(), "{s:?}");
+    }
+
+    /// The stepped remainders equal the `%` operator (IEEE 754 fmod, exact) bit for bit, for
+    /// the refinement grid's periods and a few awkward ones.
+    #[test]
+    fn stepped_remainders_equal_fmod_bit_for_bit() {
+        let mut periods = vec![
+            4.0,
+            12.0,
+            12.5,
+            2.0f64.sqrt() * 7.0,
+            1e-3,
+            0.3,
+            1e6,
+            3e18,
+            1e300,
+        ];
+        for k in [3usize, 7, 40, 333] {
+            for j in -8i32..=8 {
+                periods.push(20_000.0 / k as f64 * (1.0 + j as f64 / 200.0));
+            }
+        }
+        for p in periods {
+            for (t, r) in Remainders::new(p).take(20_000).enumerate() {
+                assert_eq!(r.to_bits(), (t as f64 % p).to_bits(), "t={t} p={p}");
+            }
+            let b = bins(p, 20_000);
+            let bins_all = phase_bins(20_000, p, b);
+            assert!(
+                bins_all
+                    .iter()
+                    .enumerate()
+                    .all(|(t, &k)| k == bin_of(t, p, b))
+            );
+        }
     }
 
     #[test]

@@ -3,7 +3,7 @@
 use crate::EngineError;
 use crate::crossmap::estimate_with;
 use crate::embed::Manifold;
-use crate::neighbours::{ExactScan, Library};
+use crate::neighbours::{KdTree, Library};
 
 /// Forecasts of one series from its own delay embedding.
 #[derive(Debug, Clone, PartialEq)]
@@ -19,7 +19,8 @@ pub struct Forecast {
 /// Simplex projection `horizon` steps ahead: every valid state is forecast from its E+1 nearest
 /// neighbours in the whole series (leave-out by the Theiler window `theiler`, the point itself
 /// always excluded), weighted `exp(-d_i/d_1)`. Neighbours whose future is missing or beyond the
-/// end are skipped in favour of the next nearest.
+/// end are skipped in favour of the next nearest. Neighbours are found with an exact k-d tree
+/// (the same neighbours, to the last bit, as an exact scan of the whole series).
 pub fn simplex_forecast(
     x: &[f64],
     e: usize,
@@ -39,13 +40,7 @@ pub fn simplex_forecast(
         });
     }
     let library = Library::all(m.len());
-    let r = estimate_with(
-        &m,
-        &library,
-        &ExactScan::new(&m, theiler),
-        x,
-        horizon as i32,
-    );
+    let r = estimate_with(&m, &library, &KdTree::new(&m, theiler), x, horizon as i32);
     Ok(Forecast {
         predictions: r.estimates,
         skill: r.skill,

@@ -177,7 +177,8 @@ pub fn embed_all(
         .collect()
 }
 
-/// Check the cross-map parameters against the data once, before any work.
+/// Check the cross-map parameters against the data once, before any work, and prepare every
+/// variable's cycle and spectra for the surrogates once.
 pub fn validate_params(
     series: &SeriesSet,
     embeddings: &[Embedding],
@@ -185,6 +186,7 @@ pub fn validate_params(
 ) -> Result<ValidParams, PipelineError> {
     params
         .validate(series.len(), embeddings)
+        .map(|v| v.with_surrogate_bases(&series.columns))
         .map_err(|e| name_variable(e, &series.names))
 }
 
