@@ -15,7 +15,8 @@ pub struct Cli {
     /// What to do.
     #[command(subcommand)]
     pub command: Command,
-    /// Hide progress bars (they are also hidden when stderr is not a terminal).
+    /// Hide progress bars (they are also hidden when stderr is not a terminal) and the
+    /// verdict table printed at the end of scan, label and merge.
     #[arg(long, global = true)]
     pub quiet: bool,
     /// Worker threads (default: all cores). Results do not depend on it.
@@ -130,9 +131,8 @@ pub struct ScanArgs {
     /// interruption resumes; run.json is written last and marks a complete run.
     #[arg(long, value_name = "DIR")]
     pub out: PathBuf,
-    /// Name of the time column (default: a first column named `t` or `time`).
-    #[arg(long, value_name = "NAME")]
-    pub time_column: Option<String>,
+    #[command(flatten)]
+    pub table: TableArgs,
     /// Compute only shard I of N (1-based) into OUT as a shard directory, for `merge`.
     /// Response manifolds are dealt round-robin: shard I takes columns I, I+N, I+2N, ...
     #[arg(long, value_name = "I/N")]
@@ -145,6 +145,70 @@ pub struct ScanArgs {
     pub engine: EngineArgs,
     #[command(flatten)]
     pub verdict: VerdictArgs,
+}
+
+/// How the series table is read (recorded in shard manifests, hence serde).
+#[derive(Debug, Clone, Args, Serialize, Deserialize)]
+pub struct TableArgs {
+    /// Name of the time column (default: a first column named t, time, date, datetime,
+    /// year, month, week or day, in any case). Times are numbers or ISO 8601 dates and
+    /// date-times (2020-01-31, 2020-01-31T06:00, 2020-01-31T06:00+02:00).
+    #[arg(long, value_name = "NAME")]
+    pub time_column: Option<String>,
+    /// Field separator: `,` (default), `;`, `tab`, `|` or another single character.
+    #[arg(long, value_name = "CHAR", value_parser = parse_delimiter)]
+    #[serde(default)]
+    pub delimiter: Option<char>,
+    /// Numbers use a decimal comma (3,25), as in many spreadsheet exports; combine with
+    /// --delimiter ';'.
+    #[arg(long)]
+    #[serde(default)]
+    pub decimal_comma: bool,
+    /// When the time axis has uneven steps: `refuse` (default), `fill-gaps` (add rows with
+    /// every series missing for skipped time points) or `as-equal` (treat the rows as equally
+    /// spaced anyway; delay embedding assumes equal steps).
+    #[arg(long, value_name = "WHAT", default_value = "refuse", value_parser = ["refuse", "fill-gaps", "as-equal"])]
+    #[serde(default = "refuse")]
+    pub uneven_steps: String,
+}
+
+fn refuse() -> String {
+    "refuse".into()
+}
+
+impl Default for TableArgs {
+    fn default() -> Self {
+        Self {
+            time_column: None,
+            delimiter: None,
+            decimal_comma: false,
+            uneven_steps: refuse(),
+        }
+    }
+}
+
+/// `--delimiter`: one character, or the word `tab`.
+fn parse_delimiter(text: &str) -> Result<char, String> {
+    let c = match text {
+        "tab" | "\\t" | "\t" => '\t',
+        _ => {
+            let mut chars = text.chars();
+            match (chars.next(), chars.next()) {
+                (Some(c), None) => c,
+                _ => {
+                    return Err(format!(
+                        "give one character such as ; or the word tab, not `{text}`"
+                    ));
+                }
+            }
+        }
+    };
+    if !c.is_ascii() || matches!(c, '"' | '\n' | '\r') || c.is_ascii_alphanumeric() {
+        return Err(format!(
+            "`{text}` cannot separate fields: give an ASCII punctuation character such as ; or |, or tab"
+        ));
+    }
+    Ok(c)
 }
 
 /// `merge`.

@@ -4,7 +4,26 @@ use anyhow::{Context, bail};
 use crossmap_engine::{CrossMapParams, EmbeddingSettings, LibrarySizes};
 use triage_pipeline::{AnalysisSettings, QualityThresholds};
 
-use crate::cli::EngineArgs;
+use crate::cli::{EngineArgs, TableArgs};
+
+/// How to read the series table, from the table flags.
+pub fn read_options(args: &TableArgs) -> series_io::ReadOptions {
+    let mut opts = series_io::ReadOptions::default()
+        .with_decimal_comma(args.decimal_comma)
+        .with_uneven_steps(match args.uneven_steps.as_str() {
+            "fill-gaps" => series_io::UnevenSteps::FillGaps,
+            "as-equal" => series_io::UnevenSteps::AsEqual,
+            _ => series_io::UnevenSteps::Refuse,
+        });
+    if let Some(d) = args.delimiter {
+        // The parser only accepts ASCII separators.
+        opts = opts.with_delimiter(d as u8);
+    }
+    if let Some(t) = &args.time_column {
+        opts = opts.with_time_column(t.clone());
+    }
+    opts
+}
 
 /// The analysis settings named by the engine flags.
 pub fn analysis_settings(args: &EngineArgs) -> anyhow::Result<AnalysisSettings> {

@@ -17,7 +17,7 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
     let scan = ScanArgs {
         data,
         out: args.out.join("scan"),
-        time_column: None,
+        table: Default::default(),
         shard: None,
         over_budget: false,
         engine: default_engine(),

@@ -9,7 +9,7 @@ use anyhow::{Context, bail};
 use crossmap_engine::{Embedding, PairEnsemble};
 use ensemble_features::Ensemble;
 use rayon::prelude::*;
-use series_io::{DirLock, JsonDocument, OutputDir, ReadOptions, TextDocument};
+use series_io::{DirLock, JsonDocument, OutputDir, TextDocument};
 use triage_pipeline::units::{self, InputIdentity, ShardSpec, StoreManifest, UnitStore};
 use triage_pipeline::{
     Judgement, PairRecord, QualityThresholds, RunFacts, SeriesSet, assemble_curves, judge,
@@ -19,7 +19,9 @@ use verdict_model::{Verdict, VerdictPolicy};
 
 use super::model::{self, LoadedModel};
 use super::tables;
-use crate::cli::{EngineArgs, FeaturesArgs, LabelArgs, MergeArgs, ScanArgs, VerdictArgs};
+use crate::cli::{
+    EngineArgs, FeaturesArgs, LabelArgs, MergeArgs, ScanArgs, TableArgs, VerdictArgs,
+};
 use crate::config;
 use crate::progress::Progress;
 
@@ -64,16 +66,15 @@ struct Prepared {
 fn prepare(
     data: &Path,
     recorded_path: &str,
-    time_column: Option<&str>,
+    table_args: &TableArgs,
     engine: &EngineArgs,
     shard: ShardSpec,
 ) -> anyhow::Result<Prepared> {
     let settings = config::analysis_settings(engine)?;
-    let mut opts = ReadOptions::default();
-    if let Some(t) = time_column {
-        opts = opts.with_time_column(t.to_string());
+    let table = series_io::read_series(data, &config::read_options(table_args))?;
+    for w in &table.warnings {
+        eprintln!("warning: {}: {w}", data.display());
     }
-    let table = series_io::read_series(data, &opts)?;
     let series = SeriesSet {
         names: table.names.clone(),
         columns: table.columns.clone(),
@@ -93,7 +94,11 @@ fn prepare(
             variables: table.names.clone(),
         },
         settings: settings_record(&settings, &params, &series.names),
-        flags: serde_json::json!({"engine": engine, "time_column": time_column}),
+        flags: serde_json::json!({
+            "engine": engine,
+            "time_column": table_args.time_column,
+            "table": table_args,
+        }),
         shard,
         units: shard.units(series.names.len()),
         complete: false,
@@ -164,7 +169,7 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
     let prepared = prepare(
         &args.data,
         &recorded,
-        args.time_column.as_deref(),
+        &args.table,
         &args.engine,
         ShardSpec::WHOLE,
     )?;
@@ -202,13 +207,7 @@ fn run_shard(args: &ScanArgs, shard: ShardSpec, quiet: bool) -> anyhow::Result<(
     policy(&args.verdict)?;
     model::load(args.verdict.model.as_deref())?;
     let recorded = args.data.display().to_string();
-    let prepared = prepare(
-        &args.data,
-        &recorded,
-        args.time_column.as_deref(),
-        &args.engine,
-        shard,
-    )?;
+    let prepared = prepare(&args.data, &recorded, &args.table, &args.engine, shard)?;
     check_budget(&prepared, &args.data, args.over_budget, true)?;
     let store = UnitStore::open(&args.out)?;
     let _lock = lock_folder(store.output())?;
@@ -251,12 +250,20 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
     let m = &plan.manifest;
     let engine: EngineArgs = serde_json::from_value(m.flags["engine"].clone())
         .context("the shard manifest's flags cannot be read; rerun the shards with this version")?;
-    let time_column = m.flags["time_column"].as_str();
+    // Manifests from before the table flags hold only the time column.
+    let table_args: TableArgs = match m.flags.get("table") {
+        Some(v) => serde_json::from_value(v.clone())
+            .context("the shard manifest's table flags cannot be read; rerun the shards")?,
+        None => TableArgs {
+            time_column: m.flags["time_column"].as_str().map(String::from),
+            ..TableArgs::default()
+        },
+    };
     let data = args
         .data
         .clone()
         .unwrap_or_else(|| m.input.path.clone().into());
-    let prepared = prepare(&data, &m.input.path, time_column, &engine, ShardSpec::WHOLE)
+    let prepared = prepare(&data, &m.input.path, &table_args, &engine, ShardSpec::WHOLE)
         .with_context(|| {
             format!(
                 "cannot reload the input table {} the shards were computed from (pass --data PATH if it moved)",
@@ -446,6 +453,8 @@ fn finish(
             "sha256": table.sha256,
             "rows": table.n_rows(),
             "time_column": table.time_column,
+            "time_axis": time_axis_record(table),
+            "warnings": table.warnings,
             "series": table.names,
             "missing_cells": table.missing,
             "missing_cells_total": table.total_missing(),
@@ -743,6 +752,19 @@ fn cycles_record(
             })
         })
         .collect()
+}
+
+/// The time axis as found: kind, first and last time, usual step, uneven and filled steps.
+fn time_axis_record(table: &series_io::SeriesTable) -> serde_json::Value {
+    table
+        .time_axis
+        .as_ref()
+        .map_or(serde_json::Value::Null, |a| {
+            serde_json::json!({
+                "column": a.column, "kind": a.kind.as_str(), "first": a.first, "last": a.last,
+                "step": a.step, "uneven_steps": a.uneven_steps, "filled_rows": a.filled_rows,
+            })
+        })
 }
 
 fn embedding_record(names: &[String], embeddings: &[Embedding]) -> serde_json::Value {

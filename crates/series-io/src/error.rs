@@ -329,10 +329,60 @@ pub enum InputError {
         row: u64,
         /// Time column name.
         column: String,
-        /// Time on the previous row.
-        previous: f64,
-        /// Time on this row.
-        value: f64,
+        /// Time on the previous row, as written.
+        previous: String,
+        /// Time on this row, as written.
+        value: String,
+    },
+
+    /// The time axis mixes numbers, dates and date-times.
+    #[error(
+        "{file}: row {row}, column `{column}`: the time {value} is a {kind}, but the first \
+         row's time is a {first_kind}. Write every time in one form (all numbers, all dates \
+         such as 2020-01-31, or all date-times such as 2020-01-31T06:00)"
+    )]
+    TimeKindMixed {
+        /// Input name.
+        file: String,
+        /// 1-based row in the file.
+        row: u64,
+        /// Time column name.
+        column: String,
+        /// The time on this row, as written.
+        value: String,
+        /// What it is (`number`, `date`, `date-time`).
+        kind: String,
+        /// What the first row's time is.
+        first_kind: String,
+    },
+
+    /// The time axis has steps of different lengths.
+    #[error(
+        "{file}: row {row}, column `{column}`: the step from {previous} to {value} is {step}, \
+         but the usual step is {usual} ({uneven} of {steps} steps differ). Delay embedding \
+         assumes equal time steps. {fix}"
+    )]
+    UnevenSteps {
+        /// Input name.
+        file: String,
+        /// 1-based row in the file where the first uneven step ends.
+        row: u64,
+        /// Time column name.
+        column: String,
+        /// Time before the step, as written.
+        previous: String,
+        /// Time after the step, as written.
+        value: String,
+        /// The step in words.
+        step: String,
+        /// The usual step in words.
+        usual: String,
+        /// Steps that differ from the usual step.
+        uneven: usize,
+        /// All steps.
+        steps: usize,
+        /// What to do about it.
+        fix: String,
     },
 
     /// The CSV parser reported a malformed record.

@@ -36,6 +36,7 @@ mod lock;
 mod output;
 mod records;
 mod table;
+mod timeaxis;
 
 pub use cell::MISSING_TOKENS;
 pub use curves::{
@@ -50,26 +51,34 @@ pub use output::{
 };
 pub use table::{
     DEFAULT_MAX_CELLS, DEFAULT_MAX_COLUMNS, DEFAULT_MAX_LINE_BYTES, DEFAULT_MAX_ROWS, ReadOptions,
-    read_series, read_series_from,
+    TIME_COLUMN_NAMES, read_series, read_series_from,
 };
+pub use timeaxis::{TimeAxis, TimeKind, UnevenSteps};
 
 /// A validated table of series read from CSV.
 ///
 /// Guarantees: at least two series; every column as long as the time axis (when present);
 /// each series holds at least two present values that are not all equal; no infinities;
-/// time values present and strictly increasing.
+/// time values present and strictly increasing, in equal steps unless the reader was told
+/// to accept uneven ones.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SeriesTable {
     /// Name of the time column, when present.
     pub time_column: Option<String>,
-    /// Time values, when a time column is present.
+    /// Time values, when a time column is present: the numbers as written, days since
+    /// 1970-01-01 for dates, seconds since 1970-01-01T00:00 UTC for date-times.
     pub time: Option<Vec<f64>>,
+    /// What was found about the time axis (kind, first and last time, usual step).
+    pub time_axis: Option<TimeAxis>,
     /// Series names, in file order.
     pub names: Vec<String>,
     /// `columns[j][i]`: series j at row i; NaN marks a missing cell.
     pub columns: Vec<Vec<f64>>,
     /// Missing cells per series.
     pub missing: Vec<usize>,
+    /// One-line warnings about the table that do not stop the run (a first column that
+    /// looks like an unchosen time axis, uneven steps treated as equal or filled).
+    pub warnings: Vec<String>,
     /// SHA-256 (hex) of the input bytes.
     pub sha256: String,
 }
