@@ -332,7 +332,11 @@ fn demo_runs_from_any_directory_and_compares_with_its_answer_key() {
         .args(["demo", "--out", "demo", "--quiet"])
         .assert()
         .success()
-        .stdout(predicate::str::contains("answer key").and(predicate::str::contains("report:")));
+        .stdout(
+            predicate::str::contains("agrees with key")
+                .and(predicate::str::contains("report:"))
+                .and(predicate::str::is_match(r"(?m)^  driver +response +p +verdict +answer key +agrees with key +reasons$").unwrap()),
+        );
     assert!(dir.path().join("demo/scan/report.html").exists());
     // The demo decides: at most a quarter of its 42 pairs go to review, and the decided ones
     // agree with the simulator's answer key at least nine times in ten.
@@ -492,4 +496,48 @@ fn a_rising_first_column_not_taken_as_time_is_warned_about() {
         .stderr(
             predicate::str::contains("warning: ").and(predicate::str::contains("--time-column yr")),
         );
+}
+
+#[test]
+fn scan_prints_an_aligned_verdict_table_unless_quiet() {
+    let dir = temp();
+    let data = dir.path().join("maps.csv");
+    std::fs::write(&data, coupled_logistic_csv(200)).unwrap();
+    let fast = ["--replicates", "10", "--sizes", "4", "--surrogates", "4"];
+    let out = bin()
+        .arg("scan")
+        .arg(&data)
+        .arg("--out")
+        .arg(dir.path().join("loud"))
+        .args(fast)
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    let lines: Vec<&str> = text.lines().collect();
+    assert!(
+        lines[0].starts_with("  driver  response  p     verdict"),
+        "{text}"
+    );
+    // Both ordered pairs, the verdict in the header's column.
+    let col = lines[0].find("verdict").unwrap();
+    for l in &lines[1..3] {
+        assert!(l.starts_with("  x  ") || l.starts_with("  y  "), "{l}");
+        assert!(
+            ["causal", "non-causal", "review"]
+                .iter()
+                .any(|v| l[col..].starts_with(v)),
+            "{l}"
+        );
+    }
+    bin()
+        .arg("scan")
+        .arg(&data)
+        .arg("--out")
+        .arg(dir.path().join("quiet"))
+        .args(fast)
+        .arg("--quiet")
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("driver").not());
 }

@@ -43,7 +43,7 @@ pub fn scan(args: ScanArgs, quiet: bool) -> anyhow::Result<()> {
         return run_shard(&args, shard, quiet);
     }
     let outcome = run_scan(&args, quiet)?;
-    print_summary(&outcome, &args.out);
+    print_summary(&outcome, &args.out, quiet);
     Ok(())
 }
 
@@ -242,7 +242,6 @@ fn run_shard(args: &ScanArgs, shard: ShardSpec, quiet: bool) -> anyhow::Result<(
 
 /// `merge`: the files of one scan from the shard directories of `scan --shard`.
 pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
-    let _ = quiet;
     let started = Instant::now();
     let policy = policy(&args.verdict)?;
     let model = model::load(args.verdict.model.as_deref())?;
@@ -305,7 +304,7 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         Some(serde_json::json!(shards)),
         started,
     )?;
-    print_summary(&outcome, &args.out);
+    print_summary(&outcome, &args.out, quiet);
     Ok(())
 }
 
@@ -492,7 +491,6 @@ fn finish(
 }
 
 pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
-    let _ = quiet;
     let started = Instant::now();
     let policy = policy(&args.verdict)?;
     let model = model::load(args.verdict.model.as_deref())?;
@@ -533,7 +531,7 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
         ],
     };
     write_results(&out, &names, &[], &records, &judgements, &facts, &run)?;
-    print_summary(&outcome(names, records, judgements), &args.out);
+    print_summary(&outcome(names, records, judgements), &args.out, quiet);
     Ok(())
 }
 
@@ -643,7 +641,15 @@ fn outcome(names: Vec<String>, records: Vec<PairRecord>, judgements: Vec<Judgeme
     }
 }
 
-fn print_summary(o: &Outcome, out: &Path) {
+/// The verdict table (unless `quiet`), the counts, where the files are, and the caution.
+fn print_summary(o: &Outcome, out: &Path, quiet: bool) {
+    if !quiet {
+        let rows = triage_pipeline::table_rows(&o.names, &o.records, &o.judgements);
+        print!(
+            "{}",
+            review_report::verdict_table(&rows, &review_report::TableOptions::default())
+        );
+    }
     println!(
         "{} pairs: {} causal, {} non-causal, {} to review",
         o.records.len(),

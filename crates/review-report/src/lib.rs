@@ -53,9 +53,11 @@ mod model;
 mod order;
 mod plots;
 mod stats;
+mod table;
 
 pub use error::ReportError;
 pub use model::{EmbeddingRow, PairView, ReportData, VerdictKind};
+pub use table::{DEFAULT_TABLE_ROWS, TableOptions, TableRow, verdict_table};
 
 /// The caution shown prominently at the top of every report (and reusable elsewhere).
 pub const CAUTION: &str = "Each label is evidence from one method, convergent cross mapping, and holds only as far as \

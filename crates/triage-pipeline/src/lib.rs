@@ -25,7 +25,7 @@ pub use assemble::{PairRecord, assemble, assemble_curves, cycles};
 pub use estimate::WorkEstimate;
 pub use judge::{Judgement, judge, rule_of_thumb};
 pub use quality::{QualityThresholds, quality_flags};
-pub use report_view::{KEY_FEATURES, RunFacts, report_view};
+pub use report_view::{KEY_FEATURES, RunFacts, report_view, table_rows, verdict_kind};
 pub use training::{
     AnalysedSystem, SkippedSystem, analyse_systems, fine_label, series_of, training_set,
 };
