@@ -66,14 +66,20 @@ fn validate(data: &ReportData) -> Result<BTreeMap<(&str, &str), usize>, ReportEr
                 p.forward.len()
             )));
         }
-        if let Some(r) = &p.reverse
-            && r.len() != p.library_sizes.len()
-        {
-            return Err(mismatch(format!(
-                "{} library sizes but {} rows of reverse skills; give one row per size",
-                p.library_sizes.len(),
-                r.len()
-            )));
+        if let Some(r) = &p.reverse {
+            let sizes = p.reverse_library_sizes.as_ref().unwrap_or(&p.library_sizes);
+            if r.len() != sizes.len() {
+                return Err(mismatch(format!(
+                    "{} reverse library sizes but {} rows of reverse skills; give one row per size",
+                    sizes.len(),
+                    r.len()
+                )));
+            }
+            if sizes.contains(&0) {
+                return Err(mismatch(
+                    "a reverse library size of 0 cannot be drawn; sizes must be positive".into(),
+                ));
+            }
         }
         if p.library_sizes.contains(&0) {
             return Err(mismatch(
@@ -555,13 +561,37 @@ fn panel(out: &mut String, anchor: usize, p: &PairView, open: bool) -> Result<()
             BAND.0 * 100.0,
             BAND.1 * 100.0
         );
-        if p.reverse.is_some() {
-            put!(
+        match (&p.reverse, &p.reverse_library_sizes) {
+            (Some(_), None) => put!(
                 out,
-                " <span class=\"sw rev\"></span> opposite hypothesis: {} drives {}.",
+                " <span class=\"sw rev\"></span> dashed: the opposite hypothesis, {} drives {} \
+                 (skill of recovering {} from the embedding of {}). Only the direction whose \
+                 curve rises and levels off above the surrogates is evidence of driving; when \
+                 both rise, strong one-way forcing can make them converge together.",
+                esc(&p.response),
+                esc(&p.driver),
                 esc(&p.response),
                 esc(&p.driver)
-            );
+            ),
+            (Some(_), Some(sizes)) => put!(
+                out,
+                " <span class=\"sw rev\"></span> dashed: the opposite hypothesis, {} drives {}, \
+                 drawn at its own library sizes ({} to {}): the embedding of {} leaves a different \
+                 number of usable points, so its sizes differ. Only the direction whose curve \
+                 rises and levels off above the surrogates is evidence of driving.",
+                esc(&p.response),
+                esc(&p.driver),
+                sizes.first().copied().unwrap_or(0),
+                sizes.last().copied().unwrap_or(0),
+                esc(&p.driver)
+            ),
+            (None, _) => put!(
+                out,
+                " The opposite hypothesis ({} drives {}) is not drawn: the input holds no \
+                 ensemble for it.",
+                esc(&p.response),
+                esc(&p.driver)
+            ),
         }
         if let Some(s) = &p.surrogate_skills {
             let l_max = p.library_sizes.iter().max().copied().unwrap_or(0);

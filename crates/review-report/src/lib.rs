@@ -22,6 +22,7 @@
 //!     library_sizes: vec![20, 40, 80],
 //!     forward: vec![vec![0.20, 0.25], vec![0.40, 0.45], vec![0.60, 0.62]],
 //!     reverse: None,
+//!     reverse_library_sizes: None,
 //!     lag_profile: None,
 //!     surrogate_skills: Some(vec![0.01, 0.05, -0.02]),
 //!     seasonal_surrogate_skills: Some(vec![0.3, 0.35, 0.28]),

@@ -96,8 +96,11 @@ pub struct PairView {
     /// `[size][replicate]` skill of recovering the driver from the response's
     /// delay embedding (the evidence for driver → response). Non-finite values are skipped.
     pub forward: Vec<Vec<f64>>,
-    /// The opposite hypothesis (response → driver) at the same sizes, when computed.
+    /// The opposite hypothesis (response → driver), `[size][replicate]`, when computed.
     pub reverse: Option<Vec<Vec<f64>>>,
+    /// Library sizes of `reverse`'s rows, ascending, when they differ from `library_sizes`
+    /// (the two variables' embeddings can leave different usable lengths); `None`: the same.
+    pub reverse_library_sizes: Option<Vec<usize>>,
     /// (lags, skill): skill of recovering the driver at time t + lag from the
     /// response's embedding at time t, so a driver's lasting footprint shows at lag <= 0.
     pub lag_profile: Option<(Vec<i32>, Vec<f64>)>,

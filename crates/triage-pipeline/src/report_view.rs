@@ -119,12 +119,15 @@ pub fn report_view(
             reasons: reasons_view(j),
             library_sizes: rec.evidence.forward.library_sizes.clone(),
             forward: rec.evidence.forward.skills.clone(),
-            reverse: rec
+            // The opposite direction is drawn at its own sizes when they differ: the two
+            // variables' embeddings can leave different usable lengths.
+            reverse: rec.evidence.reverse.as_ref().map(|r| r.skills.clone()),
+            reverse_library_sizes: rec
                 .evidence
                 .reverse
                 .as_ref()
-                .filter(|r| r.library_sizes == rec.evidence.forward.library_sizes)
-                .map(|r| r.skills.clone()),
+                .filter(|r| r.library_sizes != rec.evidence.forward.library_sizes)
+                .map(|r| r.library_sizes.clone()),
             lag_profile: rec
                 .evidence
                 .lag
