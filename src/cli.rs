@@ -119,6 +119,10 @@ pub struct VerdictArgs {
     /// Probabilities inside LO,HI are sent to review.
     #[arg(long, default_value = verdict_model::verdict::DEFAULT_BAND_TEXT, value_name = "LO,HI")]
     pub review_band: String,
+    /// Reviewer decisions exported from an earlier report of the same input
+    /// (decisions.csv): shown beside the model's verdicts in labels.csv and the report.
+    #[arg(long, value_name = "FILE")]
+    pub decisions: Option<PathBuf>,
 }
 
 /// `scan`.
@@ -276,6 +280,20 @@ pub struct TrainArgs {
     /// its figures go into the card (default: choose by leave-one-family-out).
     #[arg(long, value_name = "SPEC")]
     pub suite: Option<PathBuf>,
+    /// Reviewer decisions exported from reports (decisions.csv, repeatable): each causal or
+    /// non-causal pair becomes an extra training row with its features from the scan it was
+    /// reviewed in (see --decision-scans); unsure pairs are left out.
+    #[arg(long, value_name = "FILE")]
+    pub decisions: Vec<PathBuf>,
+    /// Output folders of the scans the decisions were made in (repeatable); each decisions
+    /// file is matched to the scan with its input checksum. The scans must use the settings
+    /// given to train.
+    #[arg(long, value_name = "DIR")]
+    pub decision_scans: Vec<PathBuf>,
+    /// How many times each reviewed pair counts among the simulated ones (a repetition
+    /// count; 5 is a starting point, not a measured value).
+    #[arg(long, default_value_t = 5, value_name = "N")]
+    pub decision_weight: usize,
     #[command(flatten)]
     pub engine: EngineArgs,
 }

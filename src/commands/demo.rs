@@ -24,6 +24,7 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
         verdict: VerdictArgs {
             model: None,
             review_band: verdict_model::verdict::DEFAULT_BAND_TEXT.into(),
+            decisions: None,
         },
     };
     let first = STORY

@@ -181,6 +181,7 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
     let store = UnitStore::open(out.path().join(CHECKPOINT_DIR))?;
     let units = compute_units(&store, &prepared, quiet)?;
     let ensembles: Vec<PairEnsemble> = units.into_values().flatten().collect();
+    let decisions = load_decisions(&args.verdict, &prepared.table.sha256)?;
     let outcome = finish(
         &out,
         &prepared,
@@ -191,6 +192,7 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
         "scan",
         None,
         started,
+        decisions.as_ref(),
     )?;
     std::fs::remove_dir_all(store.path()).with_context(|| {
         format!(
@@ -293,6 +295,7 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         .iter()
         .map(|d| d.display().to_string())
         .collect();
+    let decisions = load_decisions(&args.verdict, &prepared.table.sha256)?;
     let outcome = finish(
         &out,
         &prepared,
@@ -303,6 +306,7 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         "merge",
         Some(serde_json::json!(shards)),
         started,
+        decisions.as_ref(),
     )?;
     print_summary(&outcome, &args.out, quiet);
     Ok(())
@@ -439,6 +443,7 @@ fn finish(
     command: &str,
     shards: Option<serde_json::Value>,
     started: Instant,
+    decisions: Option<&series_io::DecisionFile>,
 ) -> anyhow::Result<Outcome> {
     let pairs = triage_pipeline::assemble(&p.series, &p.embeddings, ensembles, &p.settings);
     let judgements = judge(&pairs, &model.bundle, policy)?;
@@ -478,6 +483,9 @@ fn finish(
         params: display_params(engine, policy),
         notes: missing_notes(&table.names, &table.missing, &p.embeddings),
     };
+    if let Some(path) = &decisions_record(decisions) {
+        run["decisions"] = path.clone();
+    }
     write_results(
         out,
         &p.series.names,
@@ -486,6 +494,7 @@ fn finish(
         &judgements,
         &facts,
         &run,
+        decisions,
     )?;
     Ok(outcome(p.series.names.clone(), pairs, judgements))
 }
@@ -504,7 +513,8 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
     )?;
     let sha = series_io::checksum::sha256_file(&args.curves)
         .with_context(|| format!("cannot read {}", args.curves.display()))?;
-    let run = serde_json::json!({
+    let decisions = load_decisions(&args.verdict, &sha)?;
+    let mut run = serde_json::json!({
         "tool": "ccm-triage",
         "version": env!("CARGO_PKG_VERSION"),
         "command": "label",
@@ -530,7 +540,19 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
                 .into(),
         ],
     };
-    write_results(&out, &names, &[], &records, &judgements, &facts, &run)?;
+    if let Some(v) = decisions_record(decisions.as_ref()) {
+        run["decisions"] = v;
+    }
+    write_results(
+        &out,
+        &names,
+        &[],
+        &records,
+        &judgements,
+        &facts,
+        &run,
+        decisions.as_ref(),
+    )?;
     print_summary(&outcome(names, records, judgements), &args.out, quiet);
     Ok(())
 }
@@ -597,6 +619,7 @@ fn write_results(
     judgements: &[Judgement],
     facts: &RunFacts,
     run: &serde_json::Value,
+    decisions: Option<&series_io::DecisionFile>,
 ) -> anyhow::Result<()> {
     // The CSV files carry spreadsheet-safe names; the report shows them as given.
     let csv_names = tables::spreadsheet_safe(names);
@@ -609,8 +632,27 @@ fn write_results(
         out.export(&tables::surrogates(names, records))?;
     }
     out.export(&tables::features(names, records))?;
-    out.export(&tables::labels(names, records, judgements))?;
-    let view = report_view(facts, names_given, embeddings, records, judgements);
+    let labels = tables::labels(names, records, judgements);
+    let mut view = report_view(facts, names_given, embeddings, records, judgements);
+    match decisions {
+        Some(d) => {
+            out.export(&tables::with_decisions(labels, d))?;
+            // The report shows the names as given; the file holds them as the CSVs write them.
+            for (pair, rec) in view.pairs.iter_mut().zip(records) {
+                pair.decision = d.get(&names[rec.driver], &names[rec.response]).map(|r| {
+                    review_report::GivenDecision {
+                        decision: r.decision.as_str().into(),
+                        note: r.note.clone(),
+                        reviewer: r.reviewer.clone(),
+                        decided_at: r.decided_at.clone(),
+                    }
+                });
+            }
+        }
+        None => {
+            out.export(&labels)?;
+        }
+    }
     let html = review_report::render_html(&view)?;
     out.export(&TextDocument {
         name: "report.html".into(),
@@ -622,6 +664,40 @@ fn write_results(
         value: run,
     })?;
     Ok(())
+}
+
+/// Read `--decisions`, refusing a file made on another input than `input_sha256`.
+fn load_decisions(
+    args: &VerdictArgs,
+    input_sha256: &str,
+) -> anyhow::Result<Option<series_io::DecisionFile>> {
+    let Some(path) = &args.decisions else {
+        return Ok(None);
+    };
+    let d = series_io::read_decisions(path)?;
+    if d.input_sha256 != input_sha256 {
+        bail!(
+            "{}: these decisions were made on another input (its sha256 is {}, this run's input \
+             has {}); give the decisions exported from a report of this same input",
+            path.display(),
+            d.input_sha256,
+            input_sha256
+        );
+    }
+    Ok(Some(d))
+}
+
+/// What run.json records about the decisions shown beside the verdicts.
+fn decisions_record(d: Option<&series_io::DecisionFile>) -> Option<serde_json::Value> {
+    d.map(|d| {
+        let count = |k: series_io::Decision| d.rows.iter().filter(|r| r.decision == k).count();
+        serde_json::json!({
+            "rows": d.rows.len(),
+            "causal": count(series_io::Decision::Causal),
+            "non_causal": count(series_io::Decision::NonCausal),
+            "unsure": count(series_io::Decision::Unsure),
+        })
+    })
 }
 
 fn outcome(names: Vec<String>, records: Vec<PairRecord>, judgements: Vec<Judgement>) -> Outcome {

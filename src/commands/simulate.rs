@@ -84,14 +84,193 @@ fn analysed(
     Ok(out)
 }
 
+/// One decisions file given to `train`: where it came from, and its rows.
+pub struct ReviewedInput {
+    /// The decisions file.
+    file: String,
+    /// The scan folder it was matched to.
+    scan: String,
+}
+
+/// Read every `--decisions` file and join it with the `--decision-scans` folder of the same
+/// input checksum, refusing scans made with other settings than the training ones.
+fn reviewed_inputs(
+    args: &TrainArgs,
+    settings: &triage_pipeline::AnalysisSettings,
+) -> anyhow::Result<Vec<(ReviewedInput, triage_pipeline::reviewed::ReviewedRows)>> {
+    if args.decisions.is_empty() && args.decision_scans.is_empty() {
+        return Ok(Vec::new());
+    }
+    anyhow::ensure!(
+        args.decision_weight >= 1 && args.decision_weight <= 1000,
+        "--decision-weight {} must be between 1 and 1000",
+        args.decision_weight
+    );
+    anyhow::ensure!(
+        !args.decisions.is_empty(),
+        "--decision-scans needs --decisions FILE: the decisions exported from those scans' reports"
+    );
+    let mut scans = Vec::new();
+    for dir in &args.decision_scans {
+        let path = dir.join("run.json");
+        let text = std::fs::read_to_string(&path).with_context(|| {
+            format!(
+                "{}: cannot read the run.json of a finished scan",
+                path.display()
+            )
+        })?;
+        let run: serde_json::Value = serde_json::from_str(&text)
+            .with_context(|| format!("{}: not a run.json written by ccm-triage", path.display()))?;
+        scans.push((dir.clone(), run));
+    }
+    let wanted = super::scan::analysis_settings_json(settings);
+    let mut out = Vec::new();
+    for file in &args.decisions {
+        let decisions = series_io::read_decisions(file)?;
+        let (dir, run) = scans
+            .iter()
+            .find(|(_, run)| run["input"]["sha256"] == decisions.input_sha256.as_str())
+            .with_context(|| {
+                format!(
+                    "{}: no --decision-scans folder holds a scan of the input these decisions \
+                     were made on (sha256 {}); pass the scan's output folder",
+                    file.display(),
+                    decisions.input_sha256
+                )
+            })?;
+        let mut recorded = run["settings"].clone();
+        if let Some(m) = recorded.as_object_mut() {
+            m.remove("n_points");
+            m.remove("per_response");
+        }
+        anyhow::ensure!(
+            recorded == wanted,
+            "{}: that scan used other analysis settings than this training run ({} there, {} \
+             here); its features would not match the simulated rows: rescan the input with the \
+             training settings, or train with the scan's settings",
+            dir.display(),
+            recorded,
+            wanted
+        );
+        let features = series_io::read_feature_rows(&dir.join("features.csv"))?;
+        let rows = triage_pipeline::reviewed::reviewed_rows(&decisions, &features)
+            .map_err(|e| anyhow::anyhow!("{}: {e}", file.display()))?;
+        out.push((
+            ReviewedInput {
+                file: file.display().to_string(),
+                scan: dir.display().to_string(),
+            },
+            rows,
+        ));
+    }
+    Ok(out)
+}
+
+/// The model card's section on reviewed pairs, reported apart from the simulated systems.
+fn reviewed_section(
+    card: &verdict_model::ModelCard,
+    reviewed: &[(ReviewedInput, triage_pipeline::reviewed::ReviewedRows)],
+    weight: usize,
+) -> String {
+    use series_io::Decision;
+    let count = |k: Decision| -> usize {
+        reviewed
+            .iter()
+            .map(|(_, r)| r.rows.iter().filter(|x| x.decision == k).count())
+            .sum()
+    };
+    let (c, n) = (count(Decision::Causal), count(Decision::NonCausal));
+    let unsure: usize = reviewed.iter().map(|(_, r)| r.unsure).sum();
+    let mut s = format!(
+        "\n## Reviewed pairs\n\n{} decisions: {c} causal, {n} non-causal, {unsure} unsure, from {} \
+         file(s). Each causal or non-causal pair is a training row of family `{}` counted {weight} \
+         times (so the counts above show it {weight} times); unsure pairs are not used. Causal \
+         decisions train as `direct`, non-causal ones as `independent`.\n\n\
+         | decisions file | scan | causal | non-causal | unsure |\n|---|---|---:|---:|---:|\n",
+        c + n + unsure,
+        reviewed.len(),
+        triage_pipeline::reviewed::REVIEWED_FAMILY
+    );
+    for (input, rows) in reviewed {
+        let k = |d: Decision| rows.rows.iter().filter(|x| x.decision == d).count();
+        s.push_str(&format!(
+            "| `{}` | `{}` | {} | {} | {} |\n",
+            input.file,
+            input.scan,
+            k(Decision::Causal),
+            k(Decision::NonCausal),
+            rows.unsure
+        ));
+    }
+    let fold = card.heads.first().and_then(|h| {
+        h.per_fold
+            .iter()
+            .find(|f| f.held_out == triage_pipeline::reviewed::REVIEWED_FAMILY)
+    });
+    match fold {
+        Some(f) => s.push_str(&format!(
+            "\nHeld out as their own fold (the model fitted without them, full head): log-loss \
+             {:.3}, ROC AUC {}, accuracy {:.3} against the reviewers' decisions.\n",
+            f.log_loss,
+            f.roc_auc
+                .map_or("n/a (one class)".to_string(), |a| format!("{a:.3}")),
+            f.accuracy
+        )),
+        None => s.push_str(
+            "\nNo held-out figure on the reviewed pairs alone: the validation folds did not hold \
+             them out as a family.\n",
+        ),
+    }
+    s
+}
+
+/// `reviewed-pairs.csv`: every reviewed pair used in training, once.
+fn reviewed_table(
+    reviewed: &[(ReviewedInput, triage_pipeline::reviewed::ReviewedRows)],
+) -> CsvTable {
+    CsvTable {
+        name: "reviewed-pairs.csv".into(),
+        header: [
+            "driver",
+            "response",
+            "decision",
+            "input_sha256",
+            "decisions_file",
+        ]
+        .map(String::from)
+        .to_vec(),
+        rows: reviewed
+            .iter()
+            .flat_map(|(input, rows)| {
+                rows.rows.iter().map(move |r| {
+                    vec![
+                        r.driver.clone(),
+                        r.response.clone(),
+                        r.decision.as_str().to_string(),
+                        r.input_sha256.clone(),
+                        input.file.clone(),
+                    ]
+                })
+            })
+            .collect(),
+    }
+}
+
 pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
     let (spec, identity) = read_spec(&args.spec)?;
     let settings = config::analysis_settings(&args.engine)?;
     let out = OutputDir::create(&args.out)?;
     let _lock = super::scan::lock_folder(&out)?;
-    let out = out.protect_inputs(&[&args.spec], &[])?;
+    let mut read: Vec<&std::path::Path> = vec![&args.spec];
+    read.extend(args.decisions.iter().map(|p| p.as_path()));
+    read.extend(args.decision_scans.iter().map(|p| p.as_path()));
+    let out = out.protect_inputs(&read, &[])?;
+    let reviewed = reviewed_inputs(&args, &settings)?;
     let (systems, skipped) = analysed(&spec, &settings, quiet)?;
-    let set = triage_pipeline::training_set(&systems);
+    let mut set = triage_pipeline::training_set(&systems);
+    for (_, rows) in &reviewed {
+        triage_pipeline::reviewed::add_reviewed(&mut set, &rows.rows, args.decision_weight);
+    }
     anyhow::ensure!(
         !set.rows.is_empty(),
         "spec {} produced no usable pairs; raise the counts or lengths in it",
@@ -131,7 +310,12 @@ pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
     let bundle = verdict_model::fit_with_suite(&set, suite.as_ref().map(|s| &s.0), &cfg)?;
     let bytes = bundle.to_bytes()?;
     let card = bundle.card();
-    out.write_bytes("model-card.md", card.to_markdown().as_bytes())?;
+    let mut markdown = card.to_markdown();
+    if !reviewed.is_empty() {
+        markdown.push_str(&reviewed_section(card, &reviewed, args.decision_weight));
+        out.export(&reviewed_table(&reviewed))?;
+    }
+    out.write_bytes("model-card.md", markdown.as_bytes())?;
     out.write_bytes("model-card.json", card.to_json()?.as_bytes())?;
     out.write_bytes(
         "reliability.svg",

@@ -11,6 +11,8 @@ use crate::stats::{BAND, quantile};
 use crate::{CAUTION, RenderOptions, ReportError};
 
 const CSS: &str = include_str!("report.css");
+/// The decision form's script: local storage and the CSV export, no network.
+const DECIDE_JS: &str = include_str!("decide.js");
 
 /// Appends formatted text; writing into a `String` cannot fail.
 macro_rules! put {
@@ -154,9 +156,12 @@ pub(crate) fn render(data: &ReportData, opts: &RenderOptions) -> Result<String, 
         out,
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
          <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n\
-         <title>{}</title>\n<style>\n{}</style>\n</head>\n<body>\n",
+         <title>{}</title>\n<style>\n{}</style>\n</head>\n\
+         <body data-input-sha256=\"{}\" data-input-name=\"{}\">\n",
         esc(&data.title),
-        CSS
+        CSS,
+        esc(data.input_sha256.as_deref().unwrap_or("")),
+        esc(&data.input_name)
     );
     header(&mut out, data);
     put!(
@@ -164,10 +169,77 @@ pub(crate) fn render(data: &ReportData, opts: &RenderOptions) -> Result<String, 
         "<aside id=\"caution\" class=\"caution\" role=\"note\"><strong>Read this first.</strong> {}</aside>\n",
         esc(CAUTION)
     );
+    decisions_bar(&mut out, data);
     summary(&mut out, data, &cells, &order, &rank);
     panels(&mut out, data, &order, &rank, opts)?;
+    put!(out, "<script>\n{}</script>\n", DECIDE_JS);
     out.push_str("</body>\n</html>\n");
     Ok(out)
+}
+
+/// The reviewer's tools: name, export and clear; the decisions themselves sit in each panel.
+fn decisions_bar(out: &mut String, data: &ReportData) {
+    out.push_str(
+        "<section id=\"decisions\" class=\"decisions\">\n<h2>Your decisions</h2>\n\
+         <p class=\"lead\">Mark each pair causal, non-causal or unsure in its panel, with a note. \
+         Decisions stay in this browser (not in this file) until you export them as \
+         <code>decisions.csv</code>, with the columns \
+         <code>driver,response,decision,note,reviewer,decided_at,input_sha256</code>; \
+         <code>ccm-triage train --decisions</code> can learn from them and \
+         <code>ccm-triage scan --decisions</code> shows them beside the model's verdicts.",
+    );
+    if data.input_sha256.is_none() {
+        out.push_str(" This run recorded no input checksum, so exported decisions cannot be matched to a run.");
+    }
+    out.push_str(
+        "</p>\n<p><label>Reviewer <input id=\"reviewer\" type=\"text\" size=\"24\" \
+         autocomplete=\"name\"></label> <button type=\"button\" id=\"export-decisions\">Export \
+         decisions (CSV)</button> <button type=\"button\" id=\"clear-decisions\">Forget \
+         decisions</button> <span id=\"decision-count\" class=\"muted\"></span></p>\n\
+         <noscript><p class=\"muted\">Scripts are off: the decision form needs them.</p></noscript>\n\
+         </section>\n",
+    );
+}
+
+/// One pair's decision form, started from a given decision when there is one.
+fn decision_form(out: &mut String, anchor: usize, p: &PairView) {
+    let safe = |n: &str| {
+        if n.starts_with(['=', '+', '-', '@', '\t', '\r']) {
+            format!("'{n}")
+        } else {
+            n.to_string()
+        }
+    };
+    put!(
+        out,
+        "<fieldset class=\"decide\" data-driver=\"{}\" data-response=\"{}\"",
+        esc(&safe(&p.driver)),
+        esc(&safe(&p.response))
+    );
+    if let Some(d) = &p.decision {
+        put!(
+            out,
+            " data-given=\"{}\" data-given-note=\"{}\" data-given-reviewer=\"{}\" data-given-at=\"{}\"",
+            esc(&d.decision),
+            esc(&d.note),
+            esc(&d.reviewer),
+            esc(&d.decided_at)
+        );
+    }
+    out.push_str("><legend>Your decision</legend>");
+    for (value, text) in [
+        ("causal", "causal"),
+        ("non-causal", "non-causal"),
+        ("unsure", "unsure"),
+    ] {
+        put!(
+            out,
+            "<label><input type=\"radio\" name=\"decide-{anchor}\" value=\"{value}\"> {text}</label> "
+        );
+    }
+    out.push_str(
+        "<label>note <input type=\"text\" class=\"note\" size=\"40\"></label></fieldset>\n",
+    );
 }
 
 fn header(out: &mut String, data: &ReportData) {
@@ -541,6 +613,33 @@ fn panel(out: &mut String, anchor: usize, p: &PairView, open: bool) -> Result<()
         }
         out.push_str("</ul>");
     }
+    if let Some(d) = &p.decision {
+        let agrees = match (d.decision.as_str(), p.verdict) {
+            ("causal", VerdictKind::Causal) | ("non-causal", VerdictKind::NonCausal) => {
+                "agrees with the model"
+            }
+            ("unsure", _) | (_, VerdictKind::Review) => "",
+            _ => "differs from the model",
+        };
+        put!(
+            out,
+            "<p class=\"given\">Reviewer's decision{}: <strong>{}</strong>{}{}{}</p>",
+            if d.reviewer.is_empty() {
+                String::new()
+            } else {
+                format!(" ({})", esc(&d.reviewer))
+            },
+            esc(&d.decision),
+            if agrees.is_empty() {
+                String::new()
+            } else {
+                format!(", {agrees}")
+            },
+            if d.note.is_empty() { "" } else { ". Note: " },
+            esc(&d.note)
+        );
+    }
+    decision_form(out, anchor, p);
     out.push_str("</div>\n<div class=\"figs\">\n");
 
     if p.library_sizes.is_empty() {

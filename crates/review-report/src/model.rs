@@ -110,4 +110,20 @@ pub struct PairView {
     pub seasonal_surrogate_skills: Option<Vec<f64>>,
     /// Feature values worth showing, as (name, value); `None` when undefined.
     pub key_features: Vec<(String, Option<f64>)>,
+    /// A reviewer's earlier decision on this pair (from a decisions file), shown beside the
+    /// model's verdict and used to start the page's decision form.
+    pub decision: Option<GivenDecision>,
+}
+
+/// A reviewer's decision on a pair, as exported from an earlier report.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct GivenDecision {
+    /// `causal`, `non-causal` or `unsure`.
+    pub decision: String,
+    /// The reviewer's note.
+    pub note: String,
+    /// Who decided.
+    pub reviewer: String,
+    /// When (ISO 8601).
+    pub decided_at: String,
 }

@@ -57,6 +57,7 @@ mod tests {
             forward: vec![],
             reverse: None,
             reverse_library_sizes: None,
+            decision: None,
             lag_profile: None,
             surrogate_skills: None,
             seasonal_surrogate_skills: None,

@@ -433,6 +433,7 @@ mod tests {
                 vec![0.11; 3],
             ]),
             reverse_library_sizes: None,
+            decision: None,
             lag_profile: None,
             surrogate_skills: Some(vec![0.0, 0.05, 0.1, -0.05]),
             seasonal_surrogate_skills: Some(vec![0.2, 0.25, 0.3]),

@@ -335,6 +335,17 @@ pub enum InputError {
         value: String,
     },
 
+    /// A reviewer-decisions file that cannot be used.
+    #[error("{file}: row {row}: {message}")]
+    BadDecisions {
+        /// Input name.
+        file: String,
+        /// 1-based row in the file.
+        row: u64,
+        /// What is wrong and the fix.
+        message: String,
+    },
+
     /// The time axis mixes numbers, dates and date-times.
     #[error(
         "{file}: row {row}, column `{column}`: the time {value} is a {kind}, but the first \

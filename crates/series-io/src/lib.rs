@@ -28,6 +28,7 @@
 mod cell;
 pub mod checksum;
 mod curves;
+mod decisions;
 mod error;
 #[doc(hidden)]
 pub mod fuzzing;
@@ -43,6 +44,10 @@ pub use curves::{
     CURVE_COLUMNS, CurvePair, CurvesCsv, CurvesOptions, DEFAULT_CURVES_MAX_ROWS,
     MAX_CURVE_LIBRARY_SIZES, group_curves, read_curve_pairs, read_curve_pairs_from, read_curves,
     read_curves_from, read_curves_with, write_curves,
+};
+pub use decisions::{
+    DECISION_COLUMNS, Decision, DecisionFile, DecisionRow, FeatureRows, read_decisions,
+    read_decisions_from, read_feature_rows,
 };
 pub use error::{InputError, OutputError};
 pub use lock::{DirLock, LOCK_FILE, LockHolder};

@@ -18,6 +18,7 @@ pub mod estimate;
 mod judge;
 mod quality;
 mod report_view;
+pub mod reviewed;
 mod training;
 pub mod units;
 

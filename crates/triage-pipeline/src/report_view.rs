@@ -140,6 +140,7 @@ pub fn report_view(
                 .zip(&index)
                 .map(|(name, k)| (name.to_string(), k.and_then(|k| rec.features[k])))
                 .collect(),
+            decision: None,
         })
         .collect();
     ReportData {

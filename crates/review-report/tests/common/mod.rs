@@ -106,6 +106,7 @@ pub fn pair(
         forward,
         reverse,
         reverse_library_sizes: None,
+        decision: None,
         lag_profile: Some((lags, lag_skill)),
         surrogate_skills: Some(surrogate.clone()),
         seasonal_surrogate_skills: Some(surrogate.iter().map(|v| v + 0.1).collect()),
