@@ -137,6 +137,8 @@ pub struct ScanArgs {
     pub out: PathBuf,
     #[command(flatten)]
     pub table: TableArgs,
+    #[command(flatten)]
+    pub select: SelectArgs,
     /// Compute only shard I of N (1-based) into OUT as a shard directory, for `merge`.
     /// Response manifolds are dealt round-robin: shard I takes columns I, I+N, I+2N, ...
     #[arg(long, value_name = "I/N")]
@@ -149,6 +151,20 @@ pub struct ScanArgs {
     pub engine: EngineArgs,
     #[command(flatten)]
     pub verdict: VerdictArgs,
+}
+
+/// Which ordered pairs to scan (recorded in shard manifests, hence serde).
+#[derive(Debug, Clone, Default, Args, Serialize, Deserialize)]
+pub struct SelectArgs {
+    /// Scan only these drivers (comma-separated names; default: every series). Only the
+    /// manifolds of the chosen drivers and responses are computed.
+    #[arg(long, value_name = "NAMES", value_delimiter = ',')]
+    #[serde(default)]
+    pub drivers: Option<Vec<String>>,
+    /// Scan only these responses (comma-separated names; default: every series).
+    #[arg(long, value_name = "NAMES", value_delimiter = ',')]
+    #[serde(default)]
+    pub responses: Option<Vec<String>>,
 }
 
 /// How the series table is read (recorded in shard manifests, hence serde).

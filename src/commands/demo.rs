@@ -18,6 +18,7 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
         data,
         out: args.out.join("scan"),
         table: Default::default(),
+        select: Default::default(),
         shard: None,
         over_budget: false,
         engine: default_engine(),

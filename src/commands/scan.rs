@@ -20,7 +20,7 @@ use verdict_model::{Verdict, VerdictPolicy};
 use super::model::{self, LoadedModel};
 use super::tables;
 use crate::cli::{
-    EngineArgs, FeaturesArgs, LabelArgs, MergeArgs, ScanArgs, TableArgs, VerdictArgs,
+    EngineArgs, FeaturesArgs, LabelArgs, MergeArgs, ScanArgs, SelectArgs, TableArgs, VerdictArgs,
 };
 use crate::config;
 use crate::progress::Progress;
@@ -59,6 +59,8 @@ struct Prepared {
     params: crossmap_engine::ValidParams,
     /// Identity of the run's work units (input checksum, settings, flags).
     manifest: StoreManifest,
+    /// The ordered pairs chosen (every pair without --drivers or --responses).
+    selection: triage_pipeline::ResolvedSelection,
 }
 
 /// Read the table, embed every variable and resolve the parameters; `recorded_path` is the
@@ -67,6 +69,7 @@ fn prepare(
     data: &Path,
     recorded_path: &str,
     table_args: &TableArgs,
+    select: &SelectArgs,
     engine: &EngineArgs,
     shard: ShardSpec,
 ) -> anyhow::Result<Prepared> {
@@ -79,6 +82,18 @@ fn prepare(
         names: table.names.clone(),
         columns: table.columns.clone(),
     };
+    let chosen = triage_pipeline::PairSelection {
+        drivers: select.drivers.clone(),
+        responses: select.responses.clone(),
+    };
+    let selection = chosen
+        .resolve(&table.names)
+        .map_err(|e| anyhow::anyhow!("{}: {e}", data.display()))?;
+    let manifolds = (!chosen.is_all()).then(|| selection.manifolds());
+    let mut units = shard.units(table.names.len());
+    if let Some(m) = &manifolds {
+        units.retain(|u| m.contains(u));
+    }
     let context = || format!("cannot analyse {}", data.display());
     let embeddings =
         triage_pipeline::embed_all(&series, &settings.embedding).with_context(context)?;
@@ -98,10 +113,12 @@ fn prepare(
             "engine": engine,
             "time_column": table_args.time_column,
             "table": table_args,
+            "select": select,
         }),
         shard,
-        units: shard.units(series.names.len()),
+        units,
         complete: false,
+        manifolds,
     };
     Ok(Prepared {
         settings,
@@ -110,6 +127,7 @@ fn prepare(
         embeddings,
         params,
         manifest,
+        selection,
     })
 }
 
@@ -170,6 +188,7 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Outcome> {
         &args.data,
         &recorded,
         &args.table,
+        &args.select,
         &args.engine,
         ShardSpec::WHOLE,
     )?;
@@ -209,7 +228,14 @@ fn run_shard(args: &ScanArgs, shard: ShardSpec, quiet: bool) -> anyhow::Result<(
     policy(&args.verdict)?;
     model::load(args.verdict.model.as_deref())?;
     let recorded = args.data.display().to_string();
-    let prepared = prepare(&args.data, &recorded, &args.table, &args.engine, shard)?;
+    let prepared = prepare(
+        &args.data,
+        &recorded,
+        &args.table,
+        &args.select,
+        &args.engine,
+        shard,
+    )?;
     check_budget(&prepared, &args.data, args.over_budget, true)?;
     let store = UnitStore::open(&args.out)?;
     let _lock = lock_folder(store.output())?;
@@ -264,7 +290,19 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         .data
         .clone()
         .unwrap_or_else(|| m.input.path.clone().into());
-    let prepared = prepare(&data, &m.input.path, &table_args, &engine, ShardSpec::WHOLE)
+    let select: SelectArgs = match m.flags.get("select") {
+        Some(v) => serde_json::from_value(v.clone())
+            .context("the shard manifest's pair choice cannot be read; rerun the shards")?,
+        None => SelectArgs::default(),
+    };
+    let prepared = prepare(
+        &data,
+        &m.input.path,
+        &table_args,
+        &select,
+        &engine,
+        ShardSpec::WHOLE,
+    )
         .with_context(|| {
             format!(
                 "cannot reload the input table {} the shards were computed from (pass --data PATH if it moved)",
@@ -445,7 +483,10 @@ fn finish(
     started: Instant,
     decisions: Option<&series_io::DecisionFile>,
 ) -> anyhow::Result<Outcome> {
-    let pairs = triage_pipeline::assemble(&p.series, &p.embeddings, ensembles, &p.settings);
+    let mut pairs = triage_pipeline::assemble(&p.series, &p.embeddings, ensembles, &p.settings);
+    // The computed manifolds also give pairs outside the choice (their targets); only the
+    // chosen pairs are labelled and written.
+    pairs.retain(|rec| p.selection.contains(rec.driver, rec.response));
     let judgements = judge(&pairs, &model.bundle, policy)?;
     let table = &p.table;
     let mut run = serde_json::json!({
@@ -470,6 +511,13 @@ fn finish(
         "review_band": [policy.band.0, policy.band.1],
         "feature_schema": {"version": ensemble_features::SCHEMA_VERSION, "hash": ensemble_features::schema_hash()},
         "pairs": pairs.len(),
+        "selection": {
+            "drivers": p.manifest.flags["select"]["drivers"],
+            "responses": p.manifest.flags["select"]["responses"],
+            "manifolds": p.manifest.manifolds.as_ref().map(|m| {
+                m.iter().map(|&k| p.series.names[k].clone()).collect::<Vec<_>>()
+            }),
+        },
         "timing": {"seconds": started.elapsed().as_secs_f64(), "threads": rayon::current_num_threads()},
     });
     if let Some(shards) = shards {

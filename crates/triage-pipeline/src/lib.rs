@@ -19,6 +19,7 @@ mod judge;
 mod quality;
 mod report_view;
 pub mod reviewed;
+mod selection;
 mod training;
 pub mod units;
 
@@ -27,6 +28,7 @@ pub use estimate::WorkEstimate;
 pub use judge::{Judgement, judge, rule_of_thumb};
 pub use quality::{QualityThresholds, quality_flags};
 pub use report_view::{KEY_FEATURES, RunFacts, report_view, table_rows, verdict_kind};
+pub use selection::{PairSelection, ResolvedSelection};
 pub use training::{
     AnalysedSystem, SkippedSystem, analyse_systems, fine_label, series_of, training_set,
 };
