@@ -583,7 +583,7 @@ fn decisions_flow_into_scan_and_train(dir: &Path, decisions: &Path, first: (&str
     let model = dir.join("model");
     let out = Command::new(bin)
         .args(["train", "--quiet"])
-        .arg(&spec)
+        .arg(spec)
         .arg("--out")
         .arg(&model)
         .arg("--decisions")

@@ -269,7 +269,7 @@ pub fn read_feature_rows(path: &Path) -> Result<FeatureRows, InputError> {
         }
         let text = |k: usize| String::from_utf8_lossy(&record[k]).into_owned();
         let mut values = Vec::with_capacity(header.len() - 2);
-        for k in 2..header.len() {
+        for (k, column) in header.iter().enumerate().skip(2) {
             let t = text(k);
             values.push(match crate::cell::parse_number(&t) {
                 Ok(crate::cell::Cell::Value(v)) => Some(v),
@@ -277,7 +277,7 @@ pub fn read_feature_rows(path: &Path) -> Result<FeatureRows, InputError> {
                 Err(_) => {
                     return Err(bad(
                         row,
-                        format!("column `{}`: {t:?} is not a number", header[k]),
+                        format!("column `{column}`: {t:?} is not a number"),
                     ));
                 }
             });

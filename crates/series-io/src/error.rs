@@ -348,9 +348,8 @@ pub enum InputError {
 
     /// The time axis mixes numbers, dates and date-times.
     #[error(
-        "{file}: row {row}, column `{column}`: the time {value} is a {kind}, but the first \
-         row's time is a {first_kind}. Write every time in one form (all numbers, all dates \
-         such as 2020-01-31, or all date-times such as 2020-01-31T06:00)"
+        "{file}: row {row}, column `{column}`: {detail}. Write every time in one form (all \
+         numbers, all dates such as 2020-01-31, or all date-times such as 2020-01-31T06:00)"
     )]
     TimeKindMixed {
         /// Input name.
@@ -359,19 +358,14 @@ pub enum InputError {
         row: u64,
         /// Time column name.
         column: String,
-        /// The time on this row, as written.
-        value: String,
-        /// What it is (`number`, `date`, `date-time`).
-        kind: String,
-        /// What the first row's time is.
-        first_kind: String,
+        /// The time on this row and what it is, against the first row's kind.
+        detail: String,
     },
 
     /// The time axis has steps of different lengths.
     #[error(
-        "{file}: row {row}, column `{column}`: the step from {previous} to {value} is {step}, \
-         but the usual step is {usual} ({uneven} of {steps} steps differ). Delay embedding \
-         assumes equal time steps. {fix}"
+        "{file}: row {row}, column `{column}`: {detail}. Delay embedding assumes equal time \
+         steps. {fix}"
     )]
     UnevenSteps {
         /// Input name.
@@ -380,18 +374,8 @@ pub enum InputError {
         row: u64,
         /// Time column name.
         column: String,
-        /// Time before the step, as written.
-        previous: String,
-        /// Time after the step, as written.
-        value: String,
-        /// The step in words.
-        step: String,
-        /// The usual step in words.
-        usual: String,
-        /// Steps that differ from the usual step.
-        uneven: usize,
-        /// All steps.
-        steps: usize,
+        /// The step, both times as written, the usual step and how many steps differ.
+        detail: String,
         /// What to do about it.
         fix: String,
     },

@@ -261,9 +261,12 @@ pub fn read_series_from(
                     file,
                     row,
                     column: header[tc].clone(),
-                    value: text.trim().to_string(),
-                    kind: t.kind.as_str().to_string(),
-                    first_kind: first.kind.as_str().to_string(),
+                    detail: format!(
+                        "the time {} is a {}, but the first row's time is a {}",
+                        text.trim(),
+                        t.kind.as_str(),
+                        first.kind.as_str()
+                    ),
                 });
             }
             if let Some(prev) = times.last()
@@ -381,12 +384,15 @@ impl TimeAxisInput<'_> {
             file: self.file.to_string(),
             row: self.rows[first_bad + 1],
             column: self.column.to_string(),
-            previous: self.text[first_bad].clone(),
-            value: self.text[first_bad + 1].clone(),
-            step: sp.words(first_bad).to_string(),
-            usual: sp.step.clone(),
-            uneven: sp.uneven(),
-            steps: sp.multiples.len(),
+            detail: format!(
+                "the step from {} to {} is {}, but the usual step is {} ({} of {} steps differ)",
+                self.text[first_bad],
+                self.text[first_bad + 1],
+                sp.words(first_bad),
+                sp.step,
+                sp.uneven(),
+                sp.multiples.len()
+            ),
             fix: fix.to_string(),
         };
         match opts.uneven_steps {
