@@ -444,7 +444,7 @@ fn check_budget(
     }
     bail!(
         "{}: the estimated work is above the budget of one process ({}). Ways out: analyse fewer \
-         variables (a table with only the columns of interest), fewer --replicates, --sizes or \
+         variables (a table with only the columns of interest, or --drivers and --responses), fewer --replicates, --sizes or \
          --surrogates, split the work into shards on a cluster (--shard I/N, each shard is \
          budgeted alone; see scripts/slurm-array.sh), or pass --over-budget to run it anyway",
         data.display(),

@@ -58,7 +58,7 @@ impl PairSelection {
             driver: mark(&self.drivers, "drivers")?,
             response: mark(&self.responses, "responses")?,
         };
-        if r.pairs().is_empty() {
+        if r.manifolds().is_empty() {
             return Err(
                 "the chosen drivers and responses make no ordered pair of two different series; \
                  add a driver or a response"
@@ -83,7 +83,7 @@ impl ResolvedSelection {
         driver != response && self.driver[driver] && self.response[response]
     }
 
-    /// The chosen ordered pairs, by (driver, response).
+    /// The chosen ordered pairs, by (driver, response) (quadratic in the variables).
     pub fn pairs(&self) -> Vec<(usize, usize)> {
         let n = self.driver.len();
         (0..n)
@@ -93,14 +93,21 @@ impl ResolvedSelection {
     }
 
     /// The manifolds (response columns) the chosen pairs need, ascending: every variable that
-    /// is the driver or the response of a chosen pair.
+    /// is the driver or the response of a chosen pair. Linear in the variables (a table of
+    /// 10,000 columns has 10^8 pairs, too many to list).
     pub fn manifolds(&self) -> Vec<usize> {
-        let mut need = vec![false; self.driver.len()];
-        for (d, r) in self.pairs() {
-            need[d] = true;
-            need[r] = true;
-        }
-        (0..need.len()).filter(|&k| need[k]).collect()
+        let (nd, nr) = (
+            self.driver.iter().filter(|&&b| b).count(),
+            self.response.iter().filter(|&&b| b).count(),
+        );
+        // Another chosen variable than `k` exists on that side.
+        let other = |count: usize, side: &[bool], k: usize| count > usize::from(side[k]);
+        (0..self.driver.len())
+            .filter(|&k| {
+                (self.driver[k] && other(nr, &self.response, k))
+                    || (self.response[k] && other(nd, &self.driver, k))
+            })
+            .collect()
     }
 }
 
@@ -133,6 +140,24 @@ mod tests {
         assert_eq!(r.pairs(), [(0, 3), (1, 3)]);
         assert_eq!(r.manifolds(), [0, 1, 3]);
         assert!(!r.contains(3, 0));
+        // A variable that is both driver and response needs its manifold once.
+        let s = PairSelection {
+            drivers: Some(vec!["a".into()]),
+            responses: Some(vec!["a".into(), "c".into()]),
+        };
+        let r = s.resolve(&names()).unwrap();
+        assert_eq!(r.pairs(), [(0, 2)]);
+        assert_eq!(r.manifolds(), [0, 2]);
+        // The manifolds are exactly the variables of the chosen pairs.
+        let s = PairSelection {
+            drivers: Some(vec!["b".into(), "e".into()]),
+            responses: Some(vec!["e".into()]),
+        };
+        let r = s.resolve(&names()).unwrap();
+        let mut from_pairs: Vec<usize> = r.pairs().iter().flat_map(|&(d, q)| [d, q]).collect();
+        from_pairs.sort_unstable();
+        from_pairs.dedup();
+        assert_eq!(r.manifolds(), from_pairs);
     }
 
     #[test]
