@@ -841,3 +841,58 @@ fn missing_notes(names: &[String], missing: &[usize], embeddings: &[Embedding]) 
     }
     notes
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn manifest(flags: serde_json::Value) -> StoreManifest {
+        StoreManifest {
+            format: units::UNITS_FORMAT.into(),
+            version: units::UNITS_VERSION,
+            tool_version: "0".into(),
+            input: InputIdentity {
+                path: "d.csv".into(),
+                sha256: "ab".repeat(32),
+                variables: vec!["a".into(), "b".into(), "c".into()],
+            },
+            settings: serde_json::json!({"seed": 1}),
+            flags,
+            shard: ShardSpec::WHOLE,
+            units: vec![0, 1, 2],
+            complete: true,
+            manifolds: None,
+        }
+    }
+
+    #[test]
+    fn recorded_options_round_trip_and_old_manifests() {
+        let choice = InputChoice {
+            table: TableSettings {
+                time_column: Some("date".into()),
+                delimiter: Some(';'),
+                decimal_comma: true,
+                uneven_steps: "fill-gaps".into(),
+            },
+            select: PairSelection {
+                drivers: Some(vec!["a".into()]),
+                responses: None,
+            },
+        };
+        let engine = EngineSettings::default();
+        let m = manifest(serde_json::json!({
+            "engine": engine,
+            "time_column": choice.table.time_column,
+            "table": choice.table,
+            "select": choice.select,
+        }));
+        let (e, c) = recorded_options(&m).unwrap();
+        assert_eq!((e, c), (engine.clone(), choice));
+        // A manifest written before the table flags and the pair choice: the time column,
+        // every pair.
+        let old = manifest(serde_json::json!({"engine": engine, "time_column": "t"}));
+        let (_, c) = recorded_options(&old).unwrap();
+        assert_eq!(c.table, TableSettings::with_time_column(Some("t")));
+        assert!(c.select.is_all());
+    }
+}
