@@ -15,7 +15,8 @@ pub struct Cli {
     /// What to do.
     #[command(subcommand)]
     pub command: Command,
-    /// Hide progress bars (they are also hidden when stderr is not a terminal).
+    /// Hide progress bars (they are also hidden when stderr is not a terminal) and the
+    /// verdict table printed at the end of scan, label and merge.
     #[arg(long, global = true)]
     pub quiet: bool,
     /// Worker threads (default: all cores). Results do not depend on it.
@@ -118,6 +119,10 @@ pub struct VerdictArgs {
     /// Probabilities inside LO,HI are sent to review.
     #[arg(long, default_value = verdict_model::verdict::DEFAULT_BAND_TEXT, value_name = "LO,HI")]
     pub review_band: String,
+    /// Reviewer decisions exported from an earlier report of the same input
+    /// (decisions.csv): shown beside the model's verdicts in labels.csv and the report.
+    #[arg(long, value_name = "FILE")]
+    pub decisions: Option<PathBuf>,
 }
 
 /// `scan`.
@@ -130,9 +135,10 @@ pub struct ScanArgs {
     /// interruption resumes; run.json is written last and marks a complete run.
     #[arg(long, value_name = "DIR")]
     pub out: PathBuf,
-    /// Name of the time column (default: a first column named `t` or `time`).
-    #[arg(long, value_name = "NAME")]
-    pub time_column: Option<String>,
+    #[command(flatten)]
+    pub table: TableArgs,
+    #[command(flatten)]
+    pub select: SelectArgs,
     /// Compute only shard I of N (1-based) into OUT as a shard directory, for `merge`.
     /// Response manifolds are dealt round-robin: shard I takes columns I, I+N, I+2N, ...
     #[arg(long, value_name = "I/N")]
@@ -145,6 +151,51 @@ pub struct ScanArgs {
     pub engine: EngineArgs,
     #[command(flatten)]
     pub verdict: VerdictArgs,
+}
+
+/// Which ordered pairs to scan (the pipeline's `PairSelection`).
+#[derive(Debug, Clone, Default, Args)]
+pub struct SelectArgs {
+    /// Scan only these drivers (comma-separated names; default: every series). Only the
+    /// manifolds of the chosen drivers and responses are computed.
+    #[arg(long, value_name = "NAMES", value_delimiter = ',')]
+    pub drivers: Option<Vec<String>>,
+    /// Scan only these responses (comma-separated names; default: every series).
+    #[arg(long, value_name = "NAMES", value_delimiter = ',')]
+    pub responses: Option<Vec<String>>,
+}
+
+/// How the series table is read (the pipeline's `TableSettings`).
+#[derive(Debug, Clone, Args)]
+pub struct TableArgs {
+    /// Name of the time column (default: a first column named t, time, date, datetime,
+    /// year, month, week or day, in any case). Times are numbers or ISO 8601 dates and
+    /// date-times (2020-01-31, 2020-01-31T06:00, 2020-01-31T06:00+02:00).
+    #[arg(long, value_name = "NAME")]
+    pub time_column: Option<String>,
+    /// Field separator: `,` (default), `;`, `tab`, `|` or another single character.
+    #[arg(long, value_name = "CHAR", value_parser = triage_pipeline::settings::parse_delimiter)]
+    pub delimiter: Option<char>,
+    /// Numbers use a decimal comma (3,25), as in many spreadsheet exports; combine with
+    /// --delimiter ';'.
+    #[arg(long)]
+    pub decimal_comma: bool,
+    /// When the time axis has uneven steps: `refuse` (default), `fill-gaps` (add rows with
+    /// every series missing for skipped time points) or `as-equal` (treat the rows as equally
+    /// spaced anyway; delay embedding assumes equal steps).
+    #[arg(long, value_name = "WHAT", default_value = "refuse", value_parser = triage_pipeline::settings::UNEVEN_STEPS)]
+    pub uneven_steps: String,
+}
+
+impl Default for TableArgs {
+    fn default() -> Self {
+        Self {
+            time_column: None,
+            delimiter: None,
+            decimal_comma: false,
+            uneven_steps: "refuse".into(),
+        }
+    }
 }
 
 /// `merge`.
@@ -212,6 +263,20 @@ pub struct TrainArgs {
     /// its figures go into the card (default: choose by leave-one-family-out).
     #[arg(long, value_name = "SPEC")]
     pub suite: Option<PathBuf>,
+    /// Reviewer decisions exported from reports (decisions.csv, repeatable): each causal or
+    /// non-causal pair becomes an extra training row with its features from the scan it was
+    /// reviewed in (see --decision-scans); unsure pairs are left out.
+    #[arg(long, value_name = "FILE")]
+    pub decisions: Vec<PathBuf>,
+    /// Output folders of the scans the decisions were made in (repeatable); each decisions
+    /// file is matched to the scan with its input checksum. The scans must use the settings
+    /// given to train.
+    #[arg(long, value_name = "DIR")]
+    pub decision_scans: Vec<PathBuf>,
+    /// How many times each reviewed pair counts among the simulated ones (a repetition
+    /// count; 5 is a starting point, not a measured value).
+    #[arg(long, default_value_t = triage_pipeline::reviewed::DEFAULT_DECISION_WEIGHT, value_name = "N")]
+    pub decision_weight: usize,
     #[command(flatten)]
     pub engine: EngineArgs,
 }

@@ -241,6 +241,60 @@ impl Browser {
             .collect()
     }
 
+    /// Click the element `selector` picks (the `index`-th match) with real mouse events at
+    /// its centre, after scrolling it into view.
+    fn click(&mut self, session: &str, selector: &str, index: usize) {
+        let rect = self.eval(
+            session,
+            &format!(
+                "(() => {{ const e = document.querySelectorAll({sel})[{index}]; \
+                 e.scrollIntoView({{block: 'center'}}); const r = e.getBoundingClientRect(); \
+                 return [r.left + r.width / 2, r.top + r.height / 2]; }})()",
+                sel = json!(selector)
+            ),
+        );
+        let (x, y) = (rect[0].as_f64().unwrap(), rect[1].as_f64().unwrap());
+        for kind in ["mousePressed", "mouseReleased"] {
+            self.call(
+                Some(session),
+                "Input.dispatchMouseEvent",
+                json!({"type": kind, "x": x, "y": y, "button": "left", "clickCount": 1}),
+            );
+        }
+    }
+
+    /// Type `text` into the focused element, as a keyboard would.
+    fn type_text(&mut self, session: &str, text: &str) {
+        self.call(Some(session), "Input.insertText", json!({"text": text}));
+    }
+
+    /// Reload the page and wait for its load event.
+    fn reload(&mut self, session: &str) {
+        self.events
+            .retain(|e| !(e["method"] == "Page.loadEventFired" && e["sessionId"] == session));
+        self.call(Some(session), "Page.reload", json!({}));
+        self.wait_event(session, "Page.loadEventFired");
+    }
+
+    /// Wait for a browser-wide event whose params satisfy `pred`.
+    fn wait_browser_event(&mut self, method: &str, pred: impl Fn(&Value) -> bool) -> Value {
+        if let Some(e) = self
+            .events
+            .iter()
+            .find(|e| e["method"] == method && pred(&e["params"]))
+        {
+            return e.clone();
+        }
+        let deadline = Instant::now() + TIMEOUT;
+        loop {
+            let v = self.recv_before(deadline, &format!("{method} event"));
+            self.events.push(v.clone());
+            if v["method"] == method && pred(&v["params"]) {
+                return v;
+            }
+        }
+    }
+
     fn close(mut self) {
         let _ = self.call(None, "Browser.close", json!({}));
         let deadline = Instant::now() + Duration::from_secs(10);
@@ -274,7 +328,8 @@ const PAGE_FACTS: &str = r#"(() => {
     caution_height: caution ? caution.getBoundingClientRect().height : 0,
     first_group: document.querySelector('section.group').id,
     resources: performance.getEntriesByType('resource').length,
-    scripts: document.scripts.length,
+    scripts: Array.from(document.scripts).filter(s => !s.src).length
+      + 1000 * Array.from(document.scripts).filter(s => s.src).length,
   };
 })()"#;
 
@@ -316,9 +371,9 @@ fn report_renders_in_chromium_without_console_errors() {
         );
         assert!(facts["caution_height"].as_f64().unwrap() > 20.0);
         assert_eq!(facts["first_group"], "group-rev");
-        // Self-contained: nothing fetched, nothing run.
+        // Self-contained: nothing fetched; the one script is inline (the decision form).
         assert_eq!(facts["resources"], json!(0), "{name}: {facts}");
-        assert_eq!(facts["scripts"], json!(0));
+        assert_eq!(facts["scripts"], json!(1));
         let problems = browser.problems(&session);
         assert!(problems.is_empty(), "{name}: page reported {problems:#?}");
     }
@@ -366,4 +421,189 @@ fn error_detection_catches_a_broken_page() {
         console.iter().any(|l| l.contains("planted")),
         "{console:#?}"
     );
+}
+
+/// A reviewer marks two pairs in the demo report, reloads the page (the marks persist in the
+/// browser), exports them, and the file's bytes are checked; then `scan --decisions` shows
+/// them in labels.csv and `train` learns from them as extra labelled rows.
+#[test]
+fn reviewer_marks_pairs_exports_them_and_train_uses_them() {
+    let Some(exe) = chromium() else { return };
+    let dir = tempfile::tempdir().unwrap();
+    let scan = dir.path().join("scan");
+    let status = Command::new(env!("CARGO_BIN_EXE_ccm-triage"))
+        .args(["scan", "--quiet", SOUND, "--out"])
+        .arg(&scan)
+        .args(FAST)
+        .stdout(Stdio::null())
+        .status()
+        .unwrap();
+    assert!(status.success());
+    let report = scan.join("report.html");
+    let run: Value =
+        serde_json::from_str(&std::fs::read_to_string(scan.join("run.json")).unwrap()).unwrap();
+    let sha = run["input"]["sha256"].as_str().unwrap().to_owned();
+    let downloads = dir.path().join("downloads");
+    std::fs::create_dir(&downloads).unwrap();
+
+    let mut browser = Browser::launch(&exe);
+    browser.call(
+        None,
+        "Browser.setDownloadBehavior",
+        json!({"behavior": "allow", "downloadPath": downloads.display().to_string(), "eventsEnabled": true}),
+    );
+    let session = browser.open(&file_url(&report));
+    // Open the first two panels as a reader would, then read which pairs they are.
+    browser.eval(
+        &session,
+        "document.querySelectorAll('details.pair').forEach((d, i) => { if (i < 2) d.open = true; })",
+    );
+    let pairs = browser.eval(
+        &session,
+        "Array.from(document.querySelectorAll('details.pair fieldset.decide')).slice(0, 2)\
+         .map(f => [f.dataset.driver, f.dataset.response])",
+    );
+    let pair = |k: usize| {
+        (
+            pairs[k][0].as_str().unwrap().to_owned(),
+            pairs[k][1].as_str().unwrap().to_owned(),
+        )
+    };
+    browser.click(&session, "#reviewer", 0);
+    browser.type_text(&session, "A. Lee");
+    browser.click(
+        &session,
+        "details.pair fieldset.decide input[value=causal]",
+        0,
+    );
+    browser.click(&session, "details.pair fieldset.decide input.note", 0);
+    browser.type_text(&session, "lag fits, \"known\" link");
+    browser.click(
+        &session,
+        "details.pair fieldset.decide input[value=non-causal]",
+        1,
+    );
+
+    // Kept in the browser: a reload shows the same marks.
+    browser.reload(&session);
+    let state = browser.eval(
+        &session,
+        "(() => { const f = document.querySelectorAll('details.pair fieldset.decide'); \
+         const c = i => { const r = f[i].querySelector('input:checked'); return r ? r.value : null; }; \
+         return [c(0), f[0].querySelector('input.note').value, c(1), \
+         document.getElementById('reviewer').value, document.getElementById('decision-count').textContent]; })()",
+    );
+    assert_eq!(
+        state,
+        json!([
+            "causal",
+            "lag fits, \"known\" link",
+            "non-causal",
+            "A. Lee",
+            "2 decisions kept in this browser"
+        ])
+    );
+
+    browser.click(&session, "#export-decisions", 0);
+    browser.wait_browser_event("Browser.downloadProgress", |p| p["state"] == "completed");
+    let problems = browser.problems(&session);
+    browser.close();
+    assert!(problems.is_empty(), "page reported {problems:#?}");
+
+    let bytes = std::fs::read(downloads.join("decisions.csv")).unwrap();
+    let text = String::from_utf8(bytes.clone()).unwrap();
+    // decided_at is the moment of the click: take it from the file, check its form, and
+    // compare every other byte exactly.
+    let stamps: Vec<&str> = text
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').rev().nth(1).unwrap())
+        .collect();
+    for s in &stamps {
+        assert!(
+            s.len() == 24 && s.ends_with('Z') && &s[10..11] == "T",
+            "decided_at {s:?} is not an ISO 8601 UTC time"
+        );
+    }
+    let ((d0, r0), (d1, r1)) = (pair(0), pair(1));
+    let expected = format!(
+        "driver,response,decision,note,reviewer,decided_at,input_sha256\n\
+         {d0},{r0},causal,\"lag fits, \"\"known\"\" link\",A. Lee,{},{sha}\n\
+         {d1},{r1},non-causal,,A. Lee,{},{sha}\n",
+        stamps[0], stamps[1]
+    );
+    assert_eq!(text, expected);
+    assert_eq!(bytes, expected.as_bytes());
+
+    decisions_flow_into_scan_and_train(dir.path(), &downloads.join("decisions.csv"), (&d0, &r0));
+}
+
+/// The demo scenario's table, and settings quick enough for a test (training uses them too).
+const SOUND: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data/sound.csv");
+const FAST: [&str; 2] = ["--replicates", "20"];
+
+/// The exported file, given to `scan --decisions`, shows in labels.csv and the report; given to
+/// `train --decisions` with the scan it came from, it adds reviewed rows to a small model.
+fn decisions_flow_into_scan_and_train(dir: &Path, decisions: &Path, first: (&str, &str)) {
+    let bin = env!("CARGO_BIN_EXE_ccm-triage");
+    let scan = dir.join("again");
+    let status = Command::new(bin)
+        .args(["scan", "--quiet", SOUND, "--out"])
+        .arg(&scan)
+        .args(FAST)
+        .arg("--decisions")
+        .arg(decisions)
+        .stdout(Stdio::null())
+        .status()
+        .unwrap();
+    assert!(status.success());
+    let labels = std::fs::read_to_string(scan.join("labels.csv")).unwrap();
+    let header = labels.lines().next().unwrap();
+    assert!(
+        header.ends_with(",reviewer_decision,reviewer_note,reviewer,decided_at"),
+        "{header}"
+    );
+    let mut rdr = csv::Reader::from_reader(labels.as_bytes());
+    let rows: Vec<csv::StringRecord> = rdr.records().map(Result::unwrap).collect();
+    let hit = rows
+        .iter()
+        .find(|r| &r[0] == first.0 && &r[1] == first.1)
+        .unwrap();
+    let n = hit.len();
+    assert_eq!(&hit[n - 4], "causal");
+    assert_eq!(&hit[n - 3], "lag fits, \"known\" link");
+    assert_eq!(rows.iter().filter(|r| !r[n - 4].is_empty()).count(), 2);
+    let html = std::fs::read_to_string(scan.join("report.html")).unwrap();
+    assert!(
+        html.contains("Reviewer&#39;s decision (A. Lee): <strong>causal</strong>")
+            || html.contains("Reviewer's decision (A. Lee): <strong>causal</strong>")
+    );
+
+    let spec = concat!(env!("CARGO_MANIFEST_DIR"), "/training-sim/specs/small.toml");
+    let model = dir.join("model");
+    let out = Command::new(bin)
+        .args(["train", "--quiet"])
+        .arg(spec)
+        .arg("--out")
+        .arg(&model)
+        .arg("--decisions")
+        .arg(decisions)
+        .arg("--decision-scans")
+        .arg(dir.join("scan"))
+        .args(FAST)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let card = std::fs::read_to_string(model.join("model-card.md")).unwrap();
+    assert!(card.contains("## Reviewed pairs"), "{card}");
+    assert!(
+        card.contains("2 decisions: 1 causal, 1 non-causal, 0 unsure"),
+        "{card}"
+    );
+    let reviewed = std::fs::read_to_string(model.join("reviewed-pairs.csv")).unwrap();
+    assert_eq!(reviewed.lines().count(), 3, "{reviewed}");
 }

@@ -329,7 +329,11 @@ fn demo_runs_from_any_directory_and_compares_with_its_answer_key() {
         .args(["demo", "--out", "demo", "--quiet"])
         .assert()
         .success()
-        .stdout(predicate::str::contains("answer key").and(predicate::str::contains("report:")));
+        .stdout(
+            predicate::str::contains("agrees with key")
+                .and(predicate::str::contains("report:"))
+                .and(predicate::str::is_match(r"(?m)^  driver +response +p +verdict +answer key +agrees with key +reasons$").unwrap()),
+        );
     assert!(dir.path().join("demo/scan/report.html").exists());
     // The demo decides: at most a quarter of its 42 pairs go to review, and the decided ones
     // agree with the simulator's answer key at least nine times in ten.
@@ -353,4 +357,274 @@ fn demo_runs_from_any_directory_and_compares_with_its_answer_key() {
         agree * 10 >= decided * 9,
         "{agree} of {decided} decided pairs agree"
     );
+}
+
+/// Days since 1970-01-01 as an ISO 8601 date (Hinnant's civil_from_days algorithm, written
+/// out here apart from the reader so the test does not check the reader against itself).
+fn iso_date(days: i64) -> String {
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = yoe + era * 400 + i64::from(m <= 2);
+    format!("{y:04}-{m:02}-{d:02}")
+}
+
+/// The coupled logistic maps as a weekly field table exported by a spreadsheet in a European
+/// number format: a `Date` column of Mondays, semicolons between fields, decimal commas.
+fn weekly_semicolon_export(n: usize) -> String {
+    // 2020-01-06 (a Monday) is day 18,267 since 1970-01-01 (Unix time 1,578,268,800 s).
+    let mut out = String::from("Date;x;y\r\n");
+    for (k, line) in coupled_logistic_csv(n).lines().skip(1).enumerate() {
+        let f: Vec<&str> = line.split(',').collect();
+        let date = iso_date(18_267 + 7 * k as i64);
+        out.push_str(&format!(
+            "{date};{};{}\r\n",
+            f[1].replace('.', ","),
+            f[2].replace('.', ",")
+        ));
+    }
+    out
+}
+
+#[test]
+fn weekly_semicolon_export_with_dates_is_scanned_in_one_command() {
+    assert_eq!(iso_date(18_267), "2020-01-06");
+    let dir = temp();
+    let csv = weekly_semicolon_export(200);
+    let fast = ["--replicates", "10", "--sizes", "4", "--surrogates", "4"];
+    let out = scan_text(
+        dir.path(),
+        "weekly",
+        &csv,
+        &[
+            &["--delimiter", ";", "--decimal-comma", "--quiet"][..],
+            &fast[..],
+        ]
+        .concat(),
+    );
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("run.json")).unwrap()).unwrap();
+    let axis = &run["input"]["time_axis"];
+    assert_eq!(axis["column"], "Date");
+    assert_eq!(axis["kind"], "date");
+    assert_eq!(axis["step"], "7 days");
+    assert_eq!(axis["first"], "2020-01-06");
+    assert_eq!(run["input"]["series"], serde_json::json!(["x", "y"]));
+    assert_eq!(read_csv(&out.join("labels.csv")).len(), 2);
+
+    // Without the options, one message names both the semicolons and the decimal commas.
+    let data = dir.path().join("weekly.csv");
+    bin()
+        .args(["scan"])
+        .arg(&data)
+        .args(["--out"])
+        .arg(dir.path().join("plain"))
+        .assert()
+        .code(1)
+        .stderr(
+            predicate::str::contains("semicolons")
+                .and(predicate::str::contains("--delimiter ';' --decimal-comma")),
+        );
+
+    // A missing week is an error naming the rows, unless asked to fill it.
+    let gappy: String = csv
+        .lines()
+        .enumerate()
+        .filter(|(i, _)| *i != 50)
+        .map(|(_, l)| format!("{l}\n"))
+        .collect();
+    let gappy_path = dir.path().join("gappy.csv");
+    std::fs::write(&gappy_path, &gappy).unwrap();
+    bin()
+        .args(["scan"])
+        .arg(&gappy_path)
+        .args(["--out"])
+        .arg(dir.path().join("gappy"))
+        .args(["--delimiter", ";", "--decimal-comma"])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("14 days").and(predicate::str::contains("fill-gaps")));
+    bin()
+        .args(["scan"])
+        .arg(&gappy_path)
+        .args(["--out"])
+        .arg(dir.path().join("gappy"))
+        .args([
+            "--delimiter",
+            ";",
+            "--decimal-comma",
+            "--uneven-steps",
+            "fill-gaps",
+            "--quiet",
+        ])
+        .args(fast)
+        .assert()
+        .success()
+        .stderr(predicate::str::contains("1 skipped time points"));
+}
+
+#[test]
+fn a_rising_first_column_not_taken_as_time_is_warned_about() {
+    let dir = temp();
+    let csv: String = logistic_pair_csv(120, 0.0, 0.1).replacen("t,x,y", "yr,x,y", 1);
+    let data = dir.path().join("years.csv");
+    std::fs::write(&data, csv).unwrap();
+    bin()
+        .args(["scan"])
+        .arg(&data)
+        .arg("--out")
+        .arg(dir.path().join("out"))
+        .args([
+            "--replicates",
+            "5",
+            "--sizes",
+            "3",
+            "--surrogates",
+            "2",
+            "--quiet",
+        ])
+        .assert()
+        .success()
+        .stderr(
+            predicate::str::contains("warning: ").and(predicate::str::contains("--time-column yr")),
+        );
+}
+
+#[test]
+fn scan_prints_an_aligned_verdict_table_unless_quiet() {
+    let dir = temp();
+    let data = dir.path().join("maps.csv");
+    std::fs::write(&data, coupled_logistic_csv(200)).unwrap();
+    let fast = ["--replicates", "10", "--sizes", "4", "--surrogates", "4"];
+    let out = bin()
+        .arg("scan")
+        .arg(&data)
+        .arg("--out")
+        .arg(dir.path().join("loud"))
+        .args(fast)
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    let lines: Vec<&str> = text.lines().collect();
+    assert!(
+        lines[0].starts_with("  driver  response  p     verdict"),
+        "{text}"
+    );
+    // Both ordered pairs, the verdict in the header's column.
+    let col = lines[0].find("verdict").unwrap();
+    for l in &lines[1..3] {
+        assert!(l.starts_with("  x  ") || l.starts_with("  y  "), "{l}");
+        assert!(
+            ["causal", "non-causal", "review"]
+                .iter()
+                .any(|v| l[col..].starts_with(v)),
+            "{l}"
+        );
+    }
+    bin()
+        .arg("scan")
+        .arg(&data)
+        .arg("--out")
+        .arg(dir.path().join("quiet"))
+        .args(fast)
+        .arg("--quiet")
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("driver").not());
+}
+
+/// `--drivers` and `--responses`: only the chosen pairs are labelled, only the manifolds they
+/// need are computed, and each chosen pair's features equal those of a scan of every pair
+/// (its response's and driver's manifolds are computed in full). Shards and merge honour it.
+#[test]
+fn chosen_drivers_and_responses_are_scanned_alone_and_merge_honours_them() {
+    let dir = temp();
+    let data = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data/sound.csv");
+    let fast = [
+        "--replicates",
+        "10",
+        "--sizes",
+        "4",
+        "--surrogates",
+        "4",
+        "--quiet",
+    ];
+    let choose = [
+        "--drivers",
+        "sandeel_index,sea_temperature",
+        "--responses",
+        "puffin_chicks",
+    ];
+    let run = |out: &str, extra: &[&str]| {
+        bin()
+            .args(["scan", data, "--out"])
+            .arg(dir.path().join(out))
+            .args(fast)
+            .args(extra)
+            .assert()
+            .success();
+    };
+    run("all", &[]);
+    run("some", &choose);
+    let labels = read_csv(&dir.path().join("some/labels.csv"));
+    let pairs: Vec<(String, String)> = labels
+        .iter()
+        .map(|r| (r["driver"].clone(), r["response"].clone()))
+        .collect();
+    assert_eq!(pairs.len(), 2);
+    assert!(pairs.contains(&("sandeel_index".into(), "puffin_chicks".into())));
+    assert!(pairs.contains(&("sea_temperature".into(), "puffin_chicks".into())));
+    let json = |p: &str| -> serde_json::Value {
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join(p)).unwrap()).unwrap()
+    };
+    let rec = json("some/run.json");
+    assert_eq!(
+        rec["selection"]["manifolds"],
+        serde_json::json!(["sandeel_index", "puffin_chicks", "sea_temperature"])
+    );
+    assert_eq!(
+        rec["selection"]["responses"],
+        serde_json::json!(["puffin_chicks"])
+    );
+    // Same features, to the byte, as the scan of every pair.
+    let rows = |p: &str| -> Vec<String> {
+        std::fs::read_to_string(dir.path().join(p))
+            .unwrap()
+            .lines()
+            .map(String::from)
+            .collect()
+    };
+    let all = rows("all/features.csv");
+    for line in rows("some/features.csv") {
+        assert!(all.contains(&line), "{line}");
+    }
+
+    // Two shards of the same choice, merged, give the same labels.
+    for shard in ["1/2", "2/2"] {
+        let name = format!("shard{}", &shard[..1]);
+        run(&name, &[&choose[..], &["--shard", shard][..]].concat());
+    }
+    bin()
+        .args(["merge", "--quiet", "--out"])
+        .arg(dir.path().join("merged"))
+        .arg(dir.path().join("shard1"))
+        .arg(dir.path().join("shard2"))
+        .assert()
+        .success();
+    assert_eq!(rows("merged/labels.csv"), rows("some/labels.csv"));
+
+    // An unknown name is refused before any work, naming the table's series.
+    bin()
+        .args(["scan", data, "--out"])
+        .arg(dir.path().join("bad"))
+        .args(["--drivers", "seals"])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("`seals`").and(predicate::str::contains("`kelp_cover`")));
 }

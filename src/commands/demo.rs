@@ -1,8 +1,8 @@
 //! `demo`: the bundled scenario, scanned with the built-in model, checked against its answer key.
 
 use anyhow::Context;
+use review_report::{TableOptions, VerdictKind, verdict_table};
 use series_io::OutputDir;
-use verdict_model::Verdict;
 
 use crate::cli::{DemoArgs, EngineArgs, ScanArgs, VerdictArgs};
 
@@ -17,13 +17,15 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
     let scan = ScanArgs {
         data,
         out: args.out.join("scan"),
-        time_column: None,
+        table: Default::default(),
+        select: Default::default(),
         shard: None,
         over_budget: false,
         engine: default_engine(),
         verdict: VerdictArgs {
             model: None,
             review_band: verdict_model::verdict::DEFAULT_BAND_TEXT.into(),
+            decisions: None,
         },
     };
     let first = STORY
@@ -34,23 +36,28 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
     }
     let outcome = super::scan::run_scan(&scan, quiet)?;
     let key = answer_key()?;
-    let mut rows = Vec::new();
+    let mut rows =
+        triage_pipeline::table_rows(&outcome.names, &outcome.records, &outcome.judgements);
     let (mut agree, mut wrong, mut review) = (0, 0, 0);
-    for (rec, j) in outcome.records.iter().zip(&outcome.judgements) {
-        let (d, r) = (&outcome.names[rec.driver], &outcome.names[rec.response]);
+    for row in &mut rows {
         let truth = key
             .iter()
-            .find(|(kd, kr, _)| kd == d && kr == r)
+            .find(|(kd, kr, _)| *kd == row.driver && *kr == row.response)
             .map(|(_, _, l)| l.clone())
-            .with_context(|| format!("answer key has no row for {d} -> {r}"))?;
+            .with_context(|| {
+                format!(
+                    "answer key has no row for {} -> {}",
+                    row.driver, row.response
+                )
+            })?;
         let causal = matches!(truth.as_str(), "direct" | "indirect");
-        let agrees = match j.verdict {
-            Verdict::Review => {
+        let agrees = match row.verdict {
+            VerdictKind::Review => {
                 review += 1;
                 "-"
             }
-            Verdict::Causal if causal => "yes",
-            Verdict::NonCausal if !causal => "yes",
+            VerdictKind::Causal if causal => "yes",
+            VerdictKind::NonCausal if !causal => "yes",
             _ => "NO",
         };
         match agrees {
@@ -58,31 +65,17 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
             "NO" => wrong += 1,
             _ => {}
         }
-        rows.push((
-            j.verdict.sort_rank(),
-            format!("{d} -> {r}"),
-            j,
-            truth,
-            agrees,
-        ));
+        row.flagged = agrees == "NO";
+        row.extra = vec![truth, agrees.to_string()];
     }
-    // Review rows first, as in labels.csv.
-    rows.sort_by_key(|r| r.0);
-    let mut table = format!(
-        "{:<34} {:>6}  {:<11} {:<26} {:<12} {}\n",
-        "driver -> response", "p", "verdict", "reasons", "answer key", "agrees"
-    );
-    for (_, pair, j, truth, agrees) in &rows {
-        table.push_str(&format!(
-            "{pair:<34} {:>6.2}  {:<11} {:<26} {truth:<12} {agrees}\n",
-            j.p_causal,
-            j.verdict.as_str(),
-            verdict_model::reasons_field(&j.reasons),
-        ));
-    }
-    println!("{table}");
+    let options = TableOptions {
+        extra_columns: vec!["answer key".into(), "agrees with key".into()],
+        flag_meaning: "the verdict disagrees with the answer key".into(),
+        ..TableOptions::default()
+    };
+    println!("{}", verdict_table(&rows, &options));
     println!(
-        "{} pairs: {agree} agree with the answer key, {wrong} disagree (marked NO), {review} sent to review",
+        "{} pairs: {agree} agree with the answer key, {wrong} disagree (marked !), {review} sent to review",
         outcome.records.len()
     );
     println!(

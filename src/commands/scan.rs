@@ -25,7 +25,7 @@ pub fn scan(args: ScanArgs, quiet: bool) -> anyhow::Result<()> {
         return run_shard(&args, shard, quiet);
     }
     let finished = run_scan(&args, quiet)?;
-    print_summary(&finished, &args.out);
+    print_summary(&finished, &args.out, quiet);
     Ok(())
 }
 
@@ -43,21 +43,28 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Finished> {
     let prepared = run::prepare(
         &args.data,
         &recorded,
-        args.time_column.as_deref(),
+        &args.input_choice(),
         &engine,
         ShardSpec::WHOLE,
     )?;
+    show_warnings(&prepared, &args.data);
+    // Read before the work, so a wrong file fails in seconds rather than after the cross maps.
+    let decisions = run::load_decisions(args.verdict.decisions.as_deref(), &prepared.table.sha256)?;
     check_budget(&prepared, &recorded, args.over_budget, true, &observer)?;
     let (out, _lock) = begin_output(
         &args.out,
-        &inputs(&[Some(&args.data), args.verdict.model.as_deref()]),
+        &inputs(&[
+            Some(&args.data),
+            args.verdict.model.as_deref(),
+            args.verdict.decisions.as_deref(),
+        ]),
         &observer,
     )?;
     let store = UnitStore::open(out.path().join(CHECKPOINT_DIR))?;
     let units = compute_units(Some(&store), &prepared, &observer)?;
     let ensembles: Vec<PairEnsemble> = units.into_values().flatten().collect();
     let finished = run::finish(
-        &prepared, &ensembles, &policy, &model, "scan", None, started,
+        &prepared, &ensembles, &policy, &model, "scan", None, started, decisions,
     )?;
     run::write_results(&out, &finished)?;
     std::fs::remove_dir_all(store.path()).with_context(|| {
@@ -77,18 +84,17 @@ fn run_shard(args: &ScanArgs, shard: ShardSpec, quiet: bool) -> anyhow::Result<(
     model_source::load(args.verdict.model.as_deref())?;
     let recorded = args.data.display().to_string();
     let engine = EngineSettings::from(&args.engine);
-    let prepared = run::prepare(
-        &args.data,
-        &recorded,
-        args.time_column.as_deref(),
-        &engine,
-        shard,
-    )?;
+    let prepared = run::prepare(&args.data, &recorded, &args.input_choice(), &engine, shard)?;
+    show_warnings(&prepared, &args.data);
     check_budget(&prepared, &recorded, args.over_budget, true, &observer)?;
     let store = UnitStore::open(&args.out)?;
     let _lock = lock_folder(store.output(), &observer)?;
     let store = store.protect_inputs(
-        &inputs(&[Some(&args.data), args.verdict.model.as_deref()]),
+        &inputs(&[
+            Some(&args.data),
+            args.verdict.model.as_deref(),
+            args.verdict.decisions.as_deref(),
+        ]),
         &["embedding.csv"],
     )?;
     let units = compute_units(Some(&store), &prepared, &observer)?;
@@ -124,18 +130,12 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
     let model = model_source::load(args.verdict.model.as_deref())?;
     let plan = units::plan_merge(&args.shards)?;
     let m = &plan.manifest;
-    let (engine, time_column) = run::recorded_options(m)?;
+    let (engine, choice) = run::recorded_options(m)?;
     let data = args
         .data
         .clone()
         .unwrap_or_else(|| m.input.path.clone().into());
-    let prepared = run::prepare(
-        &data,
-        &m.input.path,
-        time_column.as_deref(),
-        &engine,
-        ShardSpec::WHOLE,
-    )
+    let prepared = run::prepare(&data, &m.input.path, &choice, &engine, ShardSpec::WHOLE)
     .with_context(|| {
         format!(
             "cannot reload the input table {} the shards were computed from (pass --data PATH if it moved)",
@@ -155,9 +155,12 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         "the settings resolved from {} differ from the shards' ones; rerun the shards with this version",
         data.display()
     );
+    show_warnings(&prepared, &data);
+    let decisions = run::load_decisions(args.verdict.decisions.as_deref(), &prepared.table.sha256)?;
     let mut read: Vec<&Path> = args.shards.iter().map(|d| d.as_path()).collect();
     read.push(&data);
     read.extend(args.verdict.model.as_deref());
+    read.extend(args.verdict.decisions.as_deref());
     check_budget(
         &prepared,
         &data.display().to_string(),
@@ -180,9 +183,10 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         "merge",
         Some(serde_json::json!(shards)),
         started,
+        decisions,
     )?;
     run::write_results(&out, &finished)?;
-    print_summary(&finished, &args.out);
+    print_summary(&finished, &args.out, quiet);
     Ok(())
 }
 
@@ -191,15 +195,25 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
     let policy = policy(&args.verdict.review_band)?;
     let model = model_source::load(args.verdict.model.as_deref())?;
     let recorded = args.curves.display().to_string();
-    let finished = run::label_curves(&args.curves, &recorded, &policy, &model)?;
+    let finished = run::label_curves(
+        &args.curves,
+        &recorded,
+        &policy,
+        &model,
+        args.verdict.decisions.as_deref(),
+    )?;
     let out = OutputDir::create(&args.out)?;
     let _lock = lock_folder(&out, &observer)?;
     let out = out.protect_inputs(
-        &inputs(&[Some(&args.curves), args.verdict.model.as_deref()]),
+        &inputs(&[
+            Some(&args.curves),
+            args.verdict.model.as_deref(),
+            args.verdict.decisions.as_deref(),
+        ]),
         run::RESULT_FILES,
     )?;
     run::write_results(&out, &finished)?;
-    print_summary(&finished, &args.out);
+    print_summary(&finished, &args.out, quiet);
     Ok(())
 }
 
@@ -220,7 +234,22 @@ pub fn features(args: FeaturesArgs) -> anyhow::Result<()> {
     Ok(())
 }
 
-fn print_summary(o: &Finished, out: &Path) {
+/// The table reader's warnings, one line each on stderr (shown even with --quiet: they say
+/// how the input was read).
+fn show_warnings(prepared: &run::Prepared, data: &Path) {
+    for w in prepared.warnings(&data.display().to_string()) {
+        eprintln!("{w}");
+    }
+}
+
+/// The verdict table (unless `quiet`), the counts, where the files are, and the caution.
+fn print_summary(o: &Finished, out: &Path, quiet: bool) {
+    if !quiet {
+        print!(
+            "{}",
+            review_report::verdict_table(&o.table_rows(), &review_report::TableOptions::default())
+        );
+    }
     let counts = o.counts();
     println!(
         "{} pairs: {} causal, {} non-causal, {} to review",

@@ -5,6 +5,7 @@ use series_io::OutputDir;
 use triage_pipeline::model_runs;
 use triage_pipeline::model_source as model;
 use triage_pipeline::orchestration::lock_folder;
+use triage_pipeline::reviewed::Reviewed;
 use triage_pipeline::settings::{EngineSettings, policy};
 
 use crate::cli::{DemoArgs, EvaluateArgs, ModelCardArgs, SimulateArgs, TrainArgs};
@@ -33,7 +34,16 @@ pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
     let settings = engine.analysis_settings()?;
     let out = OutputDir::create(&args.out)?;
     let _lock = lock_folder(&out, &observer)?;
-    let out = out.protect_inputs(&[&args.spec], &[])?;
+    let mut read: Vec<&std::path::Path> = vec![&args.spec];
+    read.extend(args.decisions.iter().map(|p| p.as_path()));
+    read.extend(args.decision_scans.iter().map(|p| p.as_path()));
+    let out = out.protect_inputs(&read, &[])?;
+    let reviewed = Reviewed::read(
+        &args.decisions,
+        &args.decision_scans,
+        args.decision_weight,
+        &settings,
+    )?;
     let trained = model_runs::train_spec(
         &args.spec,
         &spec,
@@ -41,6 +51,7 @@ pub fn train(args: TrainArgs, quiet: bool) -> anyhow::Result<()> {
         args.suite.as_deref(),
         &engine,
         &settings,
+        reviewed,
         &observer,
     )?;
     model_runs::write_trained(&out, &trained)?;

@@ -21,7 +21,7 @@ use series_io::{Export, OutputDir};
 use triage_pipeline::model_runs;
 use triage_pipeline::model_source::{self, LoadedModel};
 use triage_pipeline::orchestration::{self as run, Cancelled, Finished, Observer};
-use triage_pipeline::settings::{EngineSettings, policy};
+use triage_pipeline::settings::{EngineSettings, TableSettings, policy};
 use triage_pipeline::units::ShardSpec;
 
 create_exception!(
@@ -293,11 +293,15 @@ fn scan(
     let (finished, notes) = run_long(py, progress, note, |obs| {
         let policy = policy(&review_band)?;
         let model = load_model(model.as_deref())?;
+        let choice = run::InputChoice {
+            table: TableSettings::with_time_column(time_column.as_deref()),
+            ..run::InputChoice::default()
+        };
         let prepared = match (&data, &path) {
             (_, Some(p)) => run::prepare(
                 p,
                 &p.display().to_string(),
-                time_column.as_deref(),
+                &choice,
                 &engine,
                 ShardSpec::WHOLE,
             )?,
@@ -306,19 +310,15 @@ fn scan(
                 let table = series_io::read_series_from(
                     bytes.as_slice(),
                     &source,
-                    &run::read_options(time_column.as_deref()),
+                    &choice.table.read_options()?,
                 )?;
-                run::prepare_table(
-                    table,
-                    &source,
-                    &source,
-                    time_column.as_deref(),
-                    &engine,
-                    ShardSpec::WHOLE,
-                )?
+                run::prepare_table(table, &source, &source, &choice, &engine, ShardSpec::WHOLE)?
             }
             (None, None) => anyhow::bail!("give a table or a path"),
         };
+        for w in prepared.warnings(&source) {
+            obs.note(&w);
+        }
         let finished = run::scan_in_memory(&prepared, &source, over_budget, &policy, &model, obs)?;
         Ok((finished, obs.notes.lock().expect("notes lock").clone()))
     })?;
@@ -347,7 +347,7 @@ fn label(
         let policy = policy(&review_band)?;
         let model = load_model(model.as_deref())?;
         match (&data, &path) {
-            (_, Some(p)) => run::label_curves(p, &p.display().to_string(), &policy, &model),
+            (_, Some(p)) => run::label_curves(p, &p.display().to_string(), &policy, &model, None),
             (Some(bytes), None) => run::label_curves_bytes(bytes, &source, &policy, &model),
             (None, None) => anyhow::bail!("give a curves table or a path"),
         }

@@ -11,6 +11,8 @@ use crate::stats::{BAND, quantile};
 use crate::{CAUTION, RenderOptions, ReportError};
 
 const CSS: &str = include_str!("report.css");
+/// The decision form's script: local storage and the CSV export, no network.
+const DECIDE_JS: &str = include_str!("decide.js");
 
 /// Appends formatted text; writing into a `String` cannot fail.
 macro_rules! put {
@@ -66,14 +68,20 @@ fn validate(data: &ReportData) -> Result<BTreeMap<(&str, &str), usize>, ReportEr
                 p.forward.len()
             )));
         }
-        if let Some(r) = &p.reverse
-            && r.len() != p.library_sizes.len()
-        {
-            return Err(mismatch(format!(
-                "{} library sizes but {} rows of reverse skills; give one row per size",
-                p.library_sizes.len(),
-                r.len()
-            )));
+        if let Some(r) = &p.reverse {
+            let sizes = p.reverse_library_sizes.as_ref().unwrap_or(&p.library_sizes);
+            if r.len() != sizes.len() {
+                return Err(mismatch(format!(
+                    "{} reverse library sizes but {} rows of reverse skills; give one row per size",
+                    sizes.len(),
+                    r.len()
+                )));
+            }
+            if sizes.contains(&0) {
+                return Err(mismatch(
+                    "a reverse library size of 0 cannot be drawn; sizes must be positive".into(),
+                ));
+            }
         }
         if p.library_sizes.contains(&0) {
             return Err(mismatch(
@@ -148,9 +156,12 @@ pub(crate) fn render(data: &ReportData, opts: &RenderOptions) -> Result<String, 
         out,
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
          <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n\
-         <title>{}</title>\n<style>\n{}</style>\n</head>\n<body>\n",
+         <title>{}</title>\n<style>\n{}</style>\n</head>\n\
+         <body data-input-sha256=\"{}\" data-input-name=\"{}\">\n",
         esc(&data.title),
-        CSS
+        CSS,
+        esc(data.input_sha256.as_deref().unwrap_or("")),
+        esc(&data.input_name)
     );
     header(&mut out, data);
     put!(
@@ -158,10 +169,77 @@ pub(crate) fn render(data: &ReportData, opts: &RenderOptions) -> Result<String, 
         "<aside id=\"caution\" class=\"caution\" role=\"note\"><strong>Read this first.</strong> {}</aside>\n",
         esc(CAUTION)
     );
+    decisions_bar(&mut out, data);
     summary(&mut out, data, &cells, &order, &rank);
     panels(&mut out, data, &order, &rank, opts)?;
+    put!(out, "<script>\n{}</script>\n", DECIDE_JS);
     out.push_str("</body>\n</html>\n");
     Ok(out)
+}
+
+/// The reviewer's tools: name, export and clear; the decisions themselves sit in each panel.
+fn decisions_bar(out: &mut String, data: &ReportData) {
+    out.push_str(
+        "<section id=\"decisions\" class=\"decisions\">\n<h2>Your decisions</h2>\n\
+         <p class=\"lead\">Mark each pair causal, non-causal or unsure in its panel, with a note. \
+         Decisions stay in this browser (not in this file) until you export them as \
+         <code>decisions.csv</code>, with the columns \
+         <code>driver,response,decision,note,reviewer,decided_at,input_sha256</code>; \
+         <code>ccm-triage train --decisions</code> can learn from them and \
+         <code>ccm-triage scan --decisions</code> shows them beside the model's verdicts.",
+    );
+    if data.input_sha256.is_none() {
+        out.push_str(" This run recorded no input checksum, so exported decisions cannot be matched to a run.");
+    }
+    out.push_str(
+        "</p>\n<p><label>Reviewer <input id=\"reviewer\" type=\"text\" size=\"24\" \
+         autocomplete=\"name\"></label> <button type=\"button\" id=\"export-decisions\">Export \
+         decisions (CSV)</button> <button type=\"button\" id=\"clear-decisions\">Forget \
+         decisions</button> <span id=\"decision-count\" class=\"muted\"></span></p>\n\
+         <noscript><p class=\"muted\">Scripts are off: the decision form needs them.</p></noscript>\n\
+         </section>\n",
+    );
+}
+
+/// One pair's decision form, started from a given decision when there is one.
+fn decision_form(out: &mut String, anchor: usize, p: &PairView) {
+    let safe = |n: &str| {
+        if n.starts_with(['=', '+', '-', '@', '\t', '\r']) {
+            format!("'{n}")
+        } else {
+            n.to_string()
+        }
+    };
+    put!(
+        out,
+        "<fieldset class=\"decide\" data-driver=\"{}\" data-response=\"{}\"",
+        esc(&safe(&p.driver)),
+        esc(&safe(&p.response))
+    );
+    if let Some(d) = &p.decision {
+        put!(
+            out,
+            " data-given=\"{}\" data-given-note=\"{}\" data-given-reviewer=\"{}\" data-given-at=\"{}\"",
+            esc(&d.decision),
+            esc(&d.note),
+            esc(&d.reviewer),
+            esc(&d.decided_at)
+        );
+    }
+    out.push_str("><legend>Your decision</legend>");
+    for (value, text) in [
+        ("causal", "causal"),
+        ("non-causal", "non-causal"),
+        ("unsure", "unsure"),
+    ] {
+        put!(
+            out,
+            "<label><input type=\"radio\" name=\"decide-{anchor}\" value=\"{value}\"> {text}</label> "
+        );
+    }
+    out.push_str(
+        "<label>note <input type=\"text\" class=\"note\" size=\"40\"></label></fieldset>\n",
+    );
 }
 
 fn header(out: &mut String, data: &ReportData) {
@@ -543,6 +621,33 @@ fn panel(out: &mut String, anchor: usize, p: &PairView, open: bool) -> Result<()
         }
         out.push_str("</ul>");
     }
+    if let Some(d) = &p.decision {
+        let agrees = match (d.decision.as_str(), p.verdict) {
+            ("causal", VerdictKind::Causal) | ("non-causal", VerdictKind::NonCausal) => {
+                "agrees with the model"
+            }
+            ("unsure", _) | (_, VerdictKind::Review) => "",
+            _ => "differs from the model",
+        };
+        put!(
+            out,
+            "<p class=\"given\">Reviewer's decision{}: <strong>{}</strong>{}{}{}</p>",
+            if d.reviewer.is_empty() {
+                String::new()
+            } else {
+                format!(" ({})", esc(&d.reviewer))
+            },
+            esc(&d.decision),
+            if agrees.is_empty() {
+                String::new()
+            } else {
+                format!(", {agrees}")
+            },
+            if d.note.is_empty() { "" } else { ". Note: " },
+            esc(&d.note)
+        );
+    }
+    decision_form(out, anchor, p);
     out.push_str("</div>\n<div class=\"figs\">\n");
 
     if p.library_sizes.is_empty() {
@@ -563,13 +668,37 @@ fn panel(out: &mut String, anchor: usize, p: &PairView, open: bool) -> Result<()
             BAND.0 * 100.0,
             BAND.1 * 100.0
         );
-        if p.reverse.is_some() {
-            put!(
+        match (&p.reverse, &p.reverse_library_sizes) {
+            (Some(_), None) => put!(
                 out,
-                " <span class=\"sw rev\"></span> opposite hypothesis: {} drives {}.",
+                " <span class=\"sw rev\"></span> dashed: the opposite hypothesis, {} drives {} \
+                 (skill of recovering {} from the embedding of {}). Only the direction whose \
+                 curve rises and levels off above the surrogates is evidence of driving; when \
+                 both rise, strong one-way forcing can make them converge together.",
+                esc(&p.response),
+                esc(&p.driver),
                 esc(&p.response),
                 esc(&p.driver)
-            );
+            ),
+            (Some(_), Some(sizes)) => put!(
+                out,
+                " <span class=\"sw rev\"></span> dashed: the opposite hypothesis, {} drives {}, \
+                 drawn at its own library sizes ({} to {}): the embedding of {} leaves a different \
+                 number of usable points, so its sizes differ. Only the direction whose curve \
+                 rises and levels off above the surrogates is evidence of driving.",
+                esc(&p.response),
+                esc(&p.driver),
+                sizes.first().copied().unwrap_or(0),
+                sizes.last().copied().unwrap_or(0),
+                esc(&p.driver)
+            ),
+            (None, _) => put!(
+                out,
+                " The opposite hypothesis ({} drives {}) is not drawn: the input holds no \
+                 ensemble for it.",
+                esc(&p.response),
+                esc(&p.driver)
+            ),
         }
         if let Some(s) = &p.surrogate_skills {
             let l_max = p.library_sizes.iter().max().copied().unwrap_or(0);

@@ -1,8 +1,9 @@
 //! A self-contained HTML review report for ccm-triage runs.
 //!
 //! The report is one file: inline CSS and inline SVG figures drawn with plotters'
-//! SVG backend, no scripts, no fonts or images fetched from anywhere, so it opens
-//! offline in any browser. It renders from a plain view model ([`ReportData`]) so it
+//! SVG backend, and one inline script for the reviewer's decisions (kept in the
+//! browser's local storage until exported as CSV); no fonts, images or scripts are
+//! fetched from anywhere, so it opens offline in any browser. It renders from a plain view model ([`ReportData`]) so it
 //! can be built and tested without the rest of the pipeline.
 //!
 //! The page starts with the caution paragraph and a summary (a verdict matrix with
@@ -22,6 +23,8 @@
 //!     library_sizes: vec![20, 40, 80],
 //!     forward: vec![vec![0.20, 0.25], vec![0.40, 0.45], vec![0.60, 0.62]],
 //!     reverse: None,
+//!     reverse_library_sizes: None,
+//!     decision: None,
 //!     lag_profile: None,
 //!     surrogate_skills: Some(vec![0.01, 0.05, -0.02]),
 //!     seasonal_surrogate_skills: Some(vec![0.3, 0.35, 0.28]),
@@ -53,9 +56,11 @@ mod model;
 mod order;
 mod plots;
 mod stats;
+mod table;
 
 pub use error::ReportError;
-pub use model::{EmbeddingRow, PairView, ReportData, VerdictKind};
+pub use model::{EmbeddingRow, GivenDecision, PairView, ReportData, VerdictKind};
+pub use table::{DEFAULT_TABLE_ROWS, TableOptions, TableRow, verdict_table};
 
 /// The caution shown prominently at the top of every report (and reusable elsewhere).
 pub const CAUTION: &str = "Each label is evidence from one method, convergent cross mapping, and holds only as far as \

@@ -101,8 +101,11 @@ pub struct PairView {
     /// `[size][replicate]` skill of recovering the driver from the response's
     /// delay embedding (the evidence for driver → response). Non-finite values are skipped.
     pub forward: Vec<Vec<f64>>,
-    /// The opposite hypothesis (response → driver) at the same sizes, when computed.
+    /// The opposite hypothesis (response → driver), `[size][replicate]`, when computed.
     pub reverse: Option<Vec<Vec<f64>>>,
+    /// Library sizes of `reverse`'s rows, ascending, when they differ from `library_sizes`
+    /// (the two variables' embeddings can leave different usable lengths); `None`: the same.
+    pub reverse_library_sizes: Option<Vec<usize>>,
     /// (lags, skill): skill of recovering the driver at time t + lag from the
     /// response's embedding at time t, so a driver's lasting footprint shows at lag <= 0.
     pub lag_profile: Option<(Vec<i32>, Vec<f64>)>,
@@ -112,4 +115,20 @@ pub struct PairView {
     pub seasonal_surrogate_skills: Option<Vec<f64>>,
     /// Feature values worth showing, as (name, value); `None` when undefined.
     pub key_features: Vec<(String, Option<f64>)>,
+    /// A reviewer's earlier decision on this pair (from a decisions file), shown beside the
+    /// model's verdict and used to start the page's decision form.
+    pub decision: Option<GivenDecision>,
+}
+
+/// A reviewer's decision on a pair, as exported from an earlier report.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct GivenDecision {
+    /// `causal`, `non-causal` or `unsure`.
+    pub decision: String,
+    /// The reviewer's note.
+    pub note: String,
+    /// Who decided.
+    pub reviewer: String,
+    /// When (ISO 8601).
+    pub decided_at: String,
 }

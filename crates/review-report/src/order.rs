@@ -56,6 +56,8 @@ mod tests {
             library_sizes: vec![],
             forward: vec![],
             reverse: None,
+            reverse_library_sizes: None,
+            decision: None,
             lag_profile: None,
             surrogate_skills: None,
             seasonal_surrogate_skills: None,

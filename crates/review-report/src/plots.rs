@@ -2,14 +2,13 @@
 
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;
-use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use crate::ReportError;
 use crate::model::PairView;
 use crate::stats::{BAND, Spread, quantile, spreads};
 
 /// Plot width and height in CSS pixels.
-const SIZE: (u32, u32) = (440, 270);
+const SIZE: (u32, u32) = (440, 300);
 /// Lag profile plot size.
 const LAG_SIZE: (u32, u32) = (340, 270);
 
@@ -54,8 +53,10 @@ fn y_bounds(values: impl Iterator<Item = f64>) -> (f64, f64) {
     (lo.max(-1.0), hi.min(1.0).max(lo + 0.1))
 }
 
+/// Library-size ticks: whole sizes without a decimal point ("5", "10", "20"), so that one
+/// axis never mixes "5.0" with "10".
 fn fmt_size(v: &f64) -> String {
-    if *v >= 10.0 {
+    if v.fract() == 0.0 || *v >= 10.0 {
         format!("{v:.0}")
     } else {
         format!("{v:.1}")
@@ -105,10 +106,30 @@ fn medians(xs: &[f64], sp: &[Option<Spread>]) -> Vec<(f64, f64)> {
         .collect()
 }
 
-/// The skill-against-library-size figure: forward ensemble, optional reverse, surrogate range.
+/// A name shortened for a legend inside the figure.
+fn short(name: &str) -> String {
+    const MAX: usize = 16;
+    if name.chars().count() <= MAX {
+        name.to_owned()
+    } else {
+        let mut s: String = name.chars().take(MAX - 1).collect();
+        s.push('…');
+        s
+    }
+}
+
+/// The skill-against-library-size figure: forward ensemble, the opposite direction (at its
+/// own library sizes when they differ), the surrogate ranges, and a legend inside the figure.
 pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
     const FIG: &str = "skill against library size";
     let xs: Vec<f64> = pair.library_sizes.iter().map(|&l| l as f64).collect();
+    let rev_xs: Vec<f64> = pair
+        .reverse_library_sizes
+        .as_ref()
+        .unwrap_or(&pair.library_sizes)
+        .iter()
+        .map(|&l| l as f64)
+        .collect();
     let fwd = spreads(&pair.forward, BAND);
     let rev = pair.reverse.as_ref().map(|r| spreads(r, BAND));
     let band = |s: &Vec<f64>| {
@@ -121,13 +142,19 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
     let sur = pair.surrogate_skills.as_ref().and_then(band);
     let seasonal = pair.seasonal_surrogate_skills.as_ref().and_then(band);
 
-    let x_min = xs.iter().copied().fold(f64::INFINITY, f64::min);
+    // The forward sizes set where the surrogate bars stand (they are at its largest size).
     let x_max = xs.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let shown_xs = || {
+        xs.iter()
+            .chain(if rev.is_some() { &rev_xs[..] } else { &[] })
+    };
+    let all_min = shown_xs().copied().fold(f64::INFINITY, f64::min);
+    let all_max = shown_xs().copied().fold(f64::NEG_INFINITY, f64::max);
     // Log spacing matches how library sizes are drawn; the margin leaves room for the surrogate bar.
-    let (x_lo, x_hi) = if x_max / x_min < 1.5 {
-        (x_min / 2.0, x_max * 2.0)
+    let (x_lo, x_hi) = if all_max / all_min < 1.5 {
+        (all_min / 2.0, all_max * 2.0)
     } else {
-        (x_min / 1.15, x_max * 1.4)
+        (all_min / 1.15, all_max.max(x_max * 1.25) * 1.12)
     };
     let all = fwd
         .iter()
@@ -136,6 +163,15 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
         .flat_map(|s| [s.lo, s.hi])
         .chain(sur.iter().chain(&seasonal).flat_map(|s| [s.0, s.2]));
     let (y_lo, y_hi) = y_bounds(all);
+    // Head room for the legend inside the figure, above the curves.
+    let entries = 1
+        + usize::from(rev.is_some())
+        + usize::from(sur.is_some())
+        + usize::from(seasonal.is_some());
+    // The legend takes about 19 px a line plus its margins out of the plot area's height.
+    let plot_px = f64::from(SIZE.1) - 56.0;
+    let free = ((entries as f64 * 19.0 + 16.0) / plot_px).min(0.6);
+    let y_hi = y_lo + (y_hi - y_lo) / (1.0 - free);
 
     let mut svg = String::new();
     {
@@ -177,12 +213,25 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
             )))
             .map_err(plot_err(FIG))?;
 
-        // Seasonal surrogates, when present, stand just right of the phase-randomised ones.
+        // Seasonal surrogates, when present, stand just right of the phase-randomised ones;
+        // the legend names both, so no label is drawn beside the bars.
         let bars = [
-            (seasonal, SEASONAL, x_max * 1.1, x_max * 1.25),
-            (sur, SURROGATE, x_max / 1.06, x_max * 1.06),
+            (
+                seasonal,
+                SEASONAL,
+                x_max * 1.1,
+                x_max * 1.25,
+                "seasonal surrogates",
+            ),
+            (
+                sur,
+                SURROGATE,
+                x_max / 1.06,
+                x_max * 1.06,
+                "surrogates (90% range)",
+            ),
         ];
-        for (kind, colour, a, b) in bars {
+        for (kind, colour, a, b, name) in bars {
             let Some((s_lo, s_mid, s_hi)) = kind else {
                 continue;
             };
@@ -191,7 +240,11 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
                     Rectangle::new([(a, s_lo), (b, s_hi)], colour.mix(0.28).filled()),
                     Rectangle::new([(a, s_lo), (b, s_hi)], colour.stroke_width(1)),
                 ])
-                .map_err(plot_err(FIG))?;
+                .map_err(plot_err(FIG))?
+                .label(name)
+                .legend(move |(x, y)| {
+                    Rectangle::new([(x, y - 5), (x + 18, y + 5)], colour.mix(0.5).filled())
+                });
             chart
                 .draw_series(std::iter::once(PathElement::new(
                     vec![(a, s_mid), (b, s_mid)],
@@ -199,23 +252,9 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
                 )))
                 .map_err(plot_err(FIG))?;
         }
-        if let Some((s_lo, _, s_hi)) = sur {
-            // A word beside the bar, because a lone grey box is easy to misread.
-            let label = ("sans-serif", LABEL_PX * 1.24)
-                .into_font()
-                .color(&SURROGATE)
-                .pos(Pos::new(HPos::Right, VPos::Center));
-            chart
-                .draw_series(std::iter::once(Text::new(
-                    "surrogates",
-                    (x_max / 1.1, (s_lo + s_hi) / 2.0),
-                    label,
-                )))
-                .map_err(plot_err(FIG))?;
-        }
 
         if let Some(rev) = &rev {
-            let outline = band_outline(&xs, rev);
+            let outline = band_outline(&rev_xs, rev);
             if outline.len() >= 4 {
                 chart
                     .draw_series(std::iter::once(Polygon::new(
@@ -224,7 +263,11 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
                     )))
                     .map_err(plot_err(FIG))?;
             }
-            let mids = medians(&xs, rev);
+            let mids = medians(&rev_xs, rev);
+            // A lone size draws no line, so its median gets a mark.
+            chart
+                .draw_series(mids.iter().map(|&p| Circle::new(p, 2, REVERSE.filled())))
+                .map_err(plot_err(FIG))?;
             chart
                 .draw_series(std::iter::once(DashedPathElement::new(
                     mids,
@@ -232,7 +275,15 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
                     6,
                     REVERSE.stroke_width(2),
                 )))
-                .map_err(plot_err(FIG))?;
+                .map_err(plot_err(FIG))?
+                .label(format!(
+                    "{} \u{2192} {} (opposite)",
+                    short(&pair.response),
+                    short(&pair.driver)
+                ))
+                .legend(|(x, y)| {
+                    DashedPathElement::new(vec![(x, y), (x + 18, y)], 5, 3, REVERSE.stroke_width(2))
+                });
         }
 
         let outline = band_outline(&xs, &fwd);
@@ -250,9 +301,25 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
                 mids.clone(),
                 FORWARD.stroke_width(2),
             )))
-            .map_err(plot_err(FIG))?;
+            .map_err(plot_err(FIG))?
+            .label(format!(
+                "{} \u{2192} {} (median)",
+                short(&pair.driver),
+                short(&pair.response)
+            ))
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], FORWARD.stroke_width(2)));
         chart
             .draw_series(mids.iter().map(|&p| Circle::new(p, 3, FORWARD.filled())))
+            .map_err(plot_err(FIG))?;
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperLeft)
+            .margin(6)
+            .legend_area_size(24)
+            .background_style(WHITE.mix(0.88))
+            .border_style(GRID)
+            .label_font(("sans-serif", LABEL_PX * 1.24).into_font().color(&INK))
+            .draw()
             .map_err(plot_err(FIG))?;
         root.present().map_err(plot_err(FIG))?;
     }
@@ -365,6 +432,8 @@ mod tests {
                 vec![0.1; 3],
                 vec![0.11; 3],
             ]),
+            reverse_library_sizes: None,
+            decision: None,
             lag_profile: None,
             surrogate_skills: Some(vec![0.0, 0.05, 0.1, -0.05]),
             seasonal_surrogate_skills: Some(vec![0.2, 0.25, 0.3]),
@@ -380,6 +449,30 @@ mod tests {
         assert!(svg.contains("<text"));
         assert!(svg.contains("library size"));
         assert!(svg.contains("<polygon"));
+    }
+
+    #[test]
+    fn reverse_is_drawn_at_its_own_sizes_with_a_legend_inside() {
+        let mut p = pair();
+        p.reverse_library_sizes = Some(vec![12, 25, 50, 160]);
+        let svg = skill_curves(&p).unwrap();
+        // The legend names both directions and the surrogates inside the figure.
+        assert!(svg.contains("a&lt;b \u{2192} c&amp;d (median)"), "{svg}");
+        assert!(svg.contains("c&amp;d \u{2192} a&lt;b (opposite)"));
+        assert!(svg.contains("surrogates (90% range)"));
+        assert!(svg.contains("seasonal surrogates"));
+        // The axis reaches the reverse curve's largest size (160), past the forward's (80).
+        assert!(
+            svg.contains(">\n100\n<"),
+            "a tick at 100 must be shown: {svg}"
+        );
+    }
+
+    #[test]
+    fn size_ticks_never_mix_decimals_with_whole_numbers() {
+        assert_eq!(fmt_size(&5.0), "5");
+        assert_eq!(fmt_size(&10.0), "10");
+        assert_eq!(fmt_size(&1.5), "1.5");
     }
 
     #[test]

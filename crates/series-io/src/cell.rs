@@ -27,15 +27,47 @@ pub(crate) fn is_missing(text: &str) -> bool {
 
 /// Parse a cell that should hold a number (surrounding spaces are ignored).
 pub(crate) fn parse_number(raw: &str) -> Result<Cell, CellProblem> {
+    parse_number_with(raw, false)
+}
+
+/// Parse a number; with `decimal_comma`, the decimal separator is a comma (`3,25`) and a
+/// point is refused, since in such files a point is a thousands separator (`1.234,5`).
+pub(crate) fn parse_number_with(raw: &str, decimal_comma: bool) -> Result<Cell, CellProblem> {
     let text = raw.trim();
     if is_missing(text) {
         return Ok(Cell::Missing);
     }
-    match text.parse::<f64>() {
+    let parsed = if decimal_comma {
+        if text.contains('.') {
+            return Err(CellProblem::NotNumeric(comma_mode_hint(text)));
+        }
+        text.replacen(',', ".", 1).parse::<f64>()
+    } else {
+        text.parse::<f64>()
+    };
+    match parsed {
         Ok(v) if v.is_nan() => Ok(Cell::Missing),
         Ok(v) if v.is_infinite() => Err(CellProblem::Infinite),
         Ok(v) => Ok(Cell::Value(v)),
+        Err(_) if decimal_comma && looks_like_date(text) => {
+            Err(CellProblem::NotNumeric(hint_for(text)))
+        }
+        Err(_) if decimal_comma => Err(CellProblem::NotNumeric(format!(
+            "With --decimal-comma, numbers are written like 3,25 or -1,5e-3. {FIX}"
+        ))),
         Err(_) => Err(CellProblem::NotNumeric(hint_for(text))),
+    }
+}
+
+fn comma_mode_hint(text: &str) -> String {
+    if text.contains(',') {
+        "With --decimal-comma a point can only be a thousands separator (1.234,5); remove the \
+         points (1234,5)"
+            .to_string()
+    } else {
+        "With --decimal-comma the decimal separator is a comma (3,25); this cell uses a point. \
+         Leave out --decimal-comma if the file's numbers use points"
+            .to_string()
     }
 }
 
@@ -64,14 +96,16 @@ pub(crate) fn hint_for(text: &str) -> String {
         );
     }
     if is_decimal_comma(text) {
-        return "It looks like a number with a decimal comma; use a point as the decimal \
-                separator (3,25 becomes 3.25), for example by exporting with an English \
-                number format"
+        return "It looks like a number with a decimal comma: pass --decimal-comma to read \
+                commas as decimal separators, or use a point (3,25 becomes 3.25), for example \
+                by exporting with an English number format"
             .to_string();
     }
     if looks_like_date(text) {
-        return "It looks like a date or clock time; numeric columns need numbers, so give the \
-                time axis as a number (for example days or seconds since the start)"
+        return "It looks like a date or clock time, which only the time axis may hold: name \
+                that column `date` or `time` (or pass --time-column NAME), write dates in ISO \
+                8601 form (2020-01-31 or 2020-01-31T06:00), or give time as a number such as \
+                days or seconds since the start"
             .to_string();
     }
     if text.ends_with('%') && text[..text.len() - 1].trim().parse::<f64>().is_ok() {
@@ -108,7 +142,7 @@ fn grouping_separator(text: &str) -> Option<char> {
 }
 
 /// `3,25` or `-0,5`: digits, one comma, digits, not in thousands groups.
-fn is_decimal_comma(text: &str) -> bool {
+pub(crate) fn is_decimal_comma(text: &str) -> bool {
     let body = text.strip_prefix(['-', '+']).unwrap_or(text);
     let mut parts = body.split(',');
     match (parts.next(), parts.next(), parts.next()) {
@@ -166,8 +200,21 @@ mod tests {
         assert!(h("2024-01-31").contains("date"));
         assert!(h("12:30:00").contains("date"));
         assert!(h("5%").contains("percent"));
+        assert!(h("3,25").contains("--decimal-comma"));
         assert!(h("abc").contains("plain decimal number"));
         assert!(h("-").contains("plain decimal number"));
+    }
+
+    #[test]
+    fn decimal_comma_mode() {
+        let p = |s| parse_number_with(s, true);
+        assert_eq!(p("3,25"), Ok(Cell::Value(3.25)));
+        assert_eq!(p("-1,5e-3"), Ok(Cell::Value(-1.5e-3)));
+        assert_eq!(p("12"), Ok(Cell::Value(12.0)));
+        assert_eq!(p("NA"), Ok(Cell::Missing));
+        assert!(matches!(p("1.234,5"), Err(CellProblem::NotNumeric(h)) if h.contains("thousands")));
+        assert!(matches!(p("3.25"), Err(CellProblem::NotNumeric(h)) if h.contains("point")));
+        assert!(matches!(p("3,2,5"), Err(CellProblem::NotNumeric(_))));
     }
 
     #[test]

@@ -161,7 +161,7 @@ fn read_rows(
     opts: &CurvesOptions,
 ) -> Result<(Vec<CurveRow>, Vec<u64>), InputError> {
     let file = source_name.to_string();
-    let mut csv = Records::new(reader, source_name, opts.max_line_bytes);
+    let mut csv = Records::new(reader, source_name, opts.max_line_bytes, b',');
     let mut record = ByteRecord::new();
     if !csv.next(&mut record)? {
         return Err(InputError::CurvesEmpty { file });

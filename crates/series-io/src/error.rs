@@ -329,10 +329,55 @@ pub enum InputError {
         row: u64,
         /// Time column name.
         column: String,
-        /// Time on the previous row.
-        previous: f64,
-        /// Time on this row.
-        value: f64,
+        /// Time on the previous row, as written.
+        previous: String,
+        /// Time on this row, as written.
+        value: String,
+    },
+
+    /// A reviewer-decisions file that cannot be used.
+    #[error("{file}: row {row}: {message}")]
+    BadDecisions {
+        /// Input name.
+        file: String,
+        /// 1-based row in the file.
+        row: u64,
+        /// What is wrong and the fix.
+        message: String,
+    },
+
+    /// The time axis mixes numbers, dates and date-times.
+    #[error(
+        "{file}: row {row}, column `{column}`: {detail}. Write every time in one form (all \
+         numbers, all dates such as 2020-01-31, or all date-times such as 2020-01-31T06:00)"
+    )]
+    TimeKindMixed {
+        /// Input name.
+        file: String,
+        /// 1-based row in the file.
+        row: u64,
+        /// Time column name.
+        column: String,
+        /// The time on this row and what it is, against the first row's kind.
+        detail: String,
+    },
+
+    /// The time axis has steps of different lengths.
+    #[error(
+        "{file}: row {row}, column `{column}`: {detail}. Delay embedding assumes equal time \
+         steps. {fix}"
+    )]
+    UnevenSteps {
+        /// Input name.
+        file: String,
+        /// 1-based row in the file where the first uneven step ends.
+        row: u64,
+        /// Time column name.
+        column: String,
+        /// The step, both times as written, the usual step and how many steps differ.
+        detail: String,
+        /// What to do about it.
+        fix: String,
     },
 
     /// The CSV parser reported a malformed record.

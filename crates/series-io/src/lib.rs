@@ -28,6 +28,7 @@
 mod cell;
 pub mod checksum;
 mod curves;
+mod decisions;
 mod error;
 #[doc(hidden)]
 pub mod fuzzing;
@@ -36,12 +37,17 @@ mod lock;
 mod output;
 mod records;
 mod table;
+mod timeaxis;
 
 pub use cell::MISSING_TOKENS;
 pub use curves::{
     CURVE_COLUMNS, CurvePair, CurvesCsv, CurvesOptions, DEFAULT_CURVES_MAX_ROWS,
     MAX_CURVE_LIBRARY_SIZES, group_curves, read_curve_pairs, read_curve_pairs_from, read_curves,
     read_curves_from, read_curves_with, write_curves,
+};
+pub use decisions::{
+    DECISION_COLUMNS, Decision, DecisionFile, DecisionRow, FeatureRows, read_decisions,
+    read_decisions_from, read_feature_rows,
 };
 pub use error::{InputError, OutputError};
 pub use lock::{DirLock, LOCK_FILE, LockHolder};
@@ -50,26 +56,34 @@ pub use output::{
 };
 pub use table::{
     DEFAULT_MAX_CELLS, DEFAULT_MAX_COLUMNS, DEFAULT_MAX_LINE_BYTES, DEFAULT_MAX_ROWS, ReadOptions,
-    read_series, read_series_from,
+    TIME_COLUMN_NAMES, read_series, read_series_from,
 };
+pub use timeaxis::{TimeAxis, TimeKind, UnevenSteps};
 
 /// A validated table of series read from CSV.
 ///
 /// Guarantees: at least two series; every column as long as the time axis (when present);
 /// each series holds at least two present values that are not all equal; no infinities;
-/// time values present and strictly increasing.
+/// time values present and strictly increasing, in equal steps unless the reader was told
+/// to accept uneven ones.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SeriesTable {
     /// Name of the time column, when present.
     pub time_column: Option<String>,
-    /// Time values, when a time column is present.
+    /// Time values, when a time column is present: the numbers as written, days since
+    /// 1970-01-01 for dates, seconds since 1970-01-01T00:00 UTC for date-times.
     pub time: Option<Vec<f64>>,
+    /// What was found about the time axis (kind, first and last time, usual step).
+    pub time_axis: Option<TimeAxis>,
     /// Series names, in file order.
     pub names: Vec<String>,
     /// `columns[j][i]`: series j at row i; NaN marks a missing cell.
     pub columns: Vec<Vec<f64>>,
     /// Missing cells per series.
     pub missing: Vec<usize>,
+    /// One-line warnings about the table that do not stop the run (a first column that
+    /// looks like an unchosen time axis, uneven steps treated as equal or filled).
+    pub warnings: Vec<String>,
     /// SHA-256 (hex) of the input bytes.
     pub sha256: String,
 }

@@ -14,9 +14,10 @@ pub(crate) struct Records<R: Read> {
 }
 
 impl<R: Read> Records<R> {
-    pub(crate) fn new(reader: R, file: &str, max_record_bytes: u64) -> Self {
+    pub(crate) fn new(reader: R, file: &str, max_record_bytes: u64, delimiter: u8) -> Self {
         let reader = csv::ReaderBuilder::new()
             .has_headers(false)
+            .delimiter(delimiter)
             // Ragged rows are reported by the callers, with the row and both counts.
             .flexible(true)
             .from_reader(GuardedReader::new(reader, max_record_bytes));

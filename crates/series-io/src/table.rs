@@ -8,8 +8,14 @@ use std::path::Path;
 use csv::ByteRecord;
 
 use crate::SeriesTable;
-use crate::cell::{Cell, CellProblem, parse_number};
+use crate::cell::{Cell, CellProblem, is_decimal_comma, parse_number_with};
 use crate::error::{InputError, show_cell, show_names};
+use crate::timeaxis::{TimeAxis, TimeKind, TimeValue, UnevenSteps, parse_time, spacing};
+
+/// First-column names taken as the time axis when no column is named (compared in any case).
+pub const TIME_COLUMN_NAMES: [&str; 8] = [
+    "t", "time", "date", "datetime", "year", "month", "week", "day",
+];
 
 /// Default limit on data rows (5 million: 40 MB per series at 8 bytes a value).
 pub const DEFAULT_MAX_ROWS: usize = 5_000_000;
@@ -23,9 +29,15 @@ pub const DEFAULT_MAX_LINE_BYTES: u64 = 64 * 1024 * 1024;
 /// How to read a series table. Build with [`ReadOptions::default`] and the `with_` setters.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct ReadOptions {
-    /// Column to use as the time axis. `None`: a first column named `t` or `time` (any case)
-    /// is the time axis, otherwise there is none.
+    /// Column to use as the time axis. `None`: a first column named as in
+    /// [`TIME_COLUMN_NAMES`] (any case) is the time axis, otherwise there is none.
     pub time_column: Option<String>,
+    /// Field separator byte (default `,`; `;` and tab are common in spreadsheet exports).
+    pub delimiter: u8,
+    /// Read numbers with a decimal comma (`3,25`); a point is then refused.
+    pub decimal_comma: bool,
+    /// What to do when the time axis has uneven steps.
+    pub uneven_steps: UnevenSteps,
     /// Most data rows accepted (header not counted); more is an error.
     pub max_rows: usize,
     /// Most numeric cells (data rows times series columns) accepted.
@@ -40,6 +52,9 @@ impl Default for ReadOptions {
     fn default() -> Self {
         Self {
             time_column: None,
+            delimiter: b',',
+            decimal_comma: false,
+            uneven_steps: UnevenSteps::Refuse,
             max_rows: DEFAULT_MAX_ROWS,
             max_cells: DEFAULT_MAX_CELLS,
             max_columns: DEFAULT_MAX_COLUMNS,
@@ -52,6 +67,24 @@ impl ReadOptions {
     /// Use the named column as the time axis (it must exist).
     pub fn with_time_column(mut self, name: impl Into<String>) -> Self {
         self.time_column = Some(name.into());
+        self
+    }
+
+    /// Separate fields with this byte instead of a comma.
+    pub fn with_delimiter(mut self, delimiter: u8) -> Self {
+        self.delimiter = delimiter;
+        self
+    }
+
+    /// Read decimal commas (`3,25`).
+    pub fn with_decimal_comma(mut self, on: bool) -> Self {
+        self.decimal_comma = on;
+        self
+    }
+
+    /// Choose what happens on uneven time steps.
+    pub fn with_uneven_steps(mut self, policy: UnevenSteps) -> Self {
+        self.uneven_steps = policy;
         self
     }
 
@@ -97,7 +130,7 @@ pub fn read_series(path: &Path, opts: &ReadOptions) -> Result<SeriesTable, Input
 ///
 /// # Format and rules (each broken rule is the [`InputError`] variant named)
 ///
-/// - Comma-separated, RFC 4180 quoting (`"a,b"`, `""` for a quote, quoted line breaks);
+/// - Comma-separated (or by `delimiter`), RFC 4180 quoting (`"a,b"`, `""` for a quote, quoted line breaks);
 ///   LF, CRLF or CR line ends; blank lines skipped; a leading UTF-8 BOM dropped; spaces
 ///   around names and numbers ignored. Rows are numbered as in the file, header = row 1.
 /// - A header is required ([`Empty`](InputError::Empty)), then at least one data row
@@ -107,13 +140,20 @@ pub fn read_series(path: &Path, opts: &ReadOptions) -> Result<SeriesTable, Input
 ///   ([`DuplicateColumn`](InputError::DuplicateColumn)), no control characters
 ///   ([`ControlInName`](InputError::ControlInName)), at most `max_columns`
 ///   ([`TooManyColumns`](InputError::TooManyColumns)).
-/// - Time axis: the first column if named `t` or `time` (any case), or the column named by
-///   `time_column` ([`TimeColumnNotFound`](InputError::TimeColumnNotFound)); every value
-///   present ([`TimeMissing`](InputError::TimeMissing)) and strictly increasing
-///   ([`TimeNotIncreasing`](InputError::TimeNotIncreasing)).
+/// - Time axis: the first column if named as in [`TIME_COLUMN_NAMES`] (any case), or the
+///   column named by `time_column` ([`TimeColumnNotFound`](InputError::TimeColumnNotFound));
+///   numbers, ISO 8601 dates (`2020-01-31`) or date-times (`2020-01-31T06:00`, optional zone
+///   `Z` or `+02:00`), one kind throughout ([`TimeKindMixed`](InputError::TimeKindMixed));
+///   every value present ([`TimeMissing`](InputError::TimeMissing)) and strictly increasing
+///   ([`TimeNotIncreasing`](InputError::TimeNotIncreasing)); steps equal
+///   ([`UnevenSteps`](InputError::UnevenSteps)) unless `uneven_steps` says otherwise. Dates
+///   step in days, or in months when every date falls on the same day of the month.
+/// - A strictly increasing first column that is not the time axis is read as a series with
+///   a warning in [`SeriesTable::warnings`], in case it is a time axis under another name.
 /// - At least two series columns ([`TooFewSeries`](InputError::TooFewSeries)).
 /// - Every row has the header's field count ([`Ragged`](InputError::Ragged)).
-/// - Cells: a number as Rust's `f64` parser reads it (`1.5`, `-2e-3`), or missing: empty,
+/// - Cells: a number as Rust's `f64` parser reads it (`1.5`, `-2e-3`; with `decimal_comma`,
+///   `1,5` and `-2e-3`), or missing: empty,
 ///   `NA`, `NaN`, `null` (any case) read as NaN and are counted per series. Anything else is
 ///   [`NotNumeric`](InputError::NotNumeric), with a hint for thousands separators, decimal
 ///   commas, dates and percent signs; `Inf` and overflowing numbers are
@@ -130,7 +170,8 @@ pub fn read_series_from(
     opts: &ReadOptions,
 ) -> Result<SeriesTable, InputError> {
     let file = source_name.to_string();
-    let mut csv = crate::records::Records::new(reader, source_name, opts.max_line_bytes);
+    let mut csv =
+        crate::records::Records::new(reader, source_name, opts.max_line_bytes, opts.delimiter);
     let mut record = ByteRecord::new();
 
     if !csv.next(&mut record)? {
@@ -144,11 +185,38 @@ pub fn read_series_from(
         });
     }
     let header = decode_header(&file, &record)?;
+    if header.len() == 1 && opts.delimiter == b',' {
+        // One field: probably another separator. The first data row tells whether the
+        // numbers also use decimal commas, so that one message names both fixes.
+        let first_row = if csv.next(&mut record)? {
+            let fields: Vec<String> = record
+                .iter()
+                .map(|f| String::from_utf8_lossy(f).into_owned())
+                .collect();
+            Some(fields.join(","))
+        } else {
+            None
+        };
+        let hint = too_few_hint(&header, first_row.as_deref(), opts.decimal_comma);
+        return Err(InputError::TooFewSeries {
+            file,
+            found: usize::from(
+                !TIME_COLUMN_NAMES
+                    .iter()
+                    .chain(opts.time_column.as_deref().iter())
+                    .any(|n| header[0].eq_ignore_ascii_case(n)),
+            ),
+            names: show_names(&header),
+            hint,
+        });
+    }
     let layout = Layout::from_header(&file, &header, opts.time_column.as_deref())?;
     let width = header.len();
     let n_series = layout.series.len();
 
-    let mut time: Option<Vec<f64>> = layout.time.map(|_| Vec::new());
+    let mut times: Vec<TimeValue> = Vec::new();
+    let mut time_text: Vec<String> = Vec::new();
+    let mut time_rows: Vec<u64> = Vec::new();
     let mut columns: Vec<Vec<f64>> = vec![Vec::new(); n_series];
     let mut missing = vec![0usize; n_series];
     let mut rows = 0usize;
@@ -173,11 +241,11 @@ pub fn read_series_from(
         if record.len() != width {
             return Err(ragged(&file, row, width, record.len()));
         }
-        if let (Some(tc), Some(times)) = (layout.time, time.as_mut()) {
+        if let Some(tc) = layout.time {
             let text = field_text(&file, row, &header[tc], &record[tc])?;
-            let t = match parse_number(text) {
-                Ok(Cell::Value(t)) => t,
-                Ok(Cell::Missing) => {
+            let t = match parse_time(text, opts.decimal_comma) {
+                Ok(Some(t)) => t,
+                Ok(None) => {
                     return Err(InputError::TimeMissing {
                         file,
                         row,
@@ -186,22 +254,39 @@ pub fn read_series_from(
                 }
                 Err(p) => return Err(cell_error(file, row, &header[tc], text, p)),
             };
-            if let Some(&prev) = times.last()
-                && t <= prev
+            if let Some(first) = times.first()
+                && first.kind != t.kind
+            {
+                return Err(InputError::TimeKindMixed {
+                    file,
+                    row,
+                    column: header[tc].clone(),
+                    detail: format!(
+                        "the time {} is a {}, but the first row's time is a {}",
+                        text.trim(),
+                        t.kind.as_str(),
+                        first.kind.as_str()
+                    ),
+                });
+            }
+            if let Some(prev) = times.last()
+                && t.value <= prev.value
             {
                 return Err(InputError::TimeNotIncreasing {
                     file,
                     row,
                     column: header[tc].clone(),
-                    previous: prev,
-                    value: t,
+                    previous: time_text.last().cloned().unwrap_or_default(),
+                    value: text.trim().to_string(),
                 });
             }
             times.push(t);
+            time_text.push(text.trim().to_string());
+            time_rows.push(row);
         }
         for (j, &c) in layout.series.iter().enumerate() {
             let text = field_text(&file, row, &header[c], &record[c])?;
-            match parse_number(text) {
+            match parse_number_with(text, opts.decimal_comma) {
                 Ok(Cell::Value(v)) => columns[j].push(v),
                 Ok(Cell::Missing) => {
                     columns[j].push(f64::NAN);
@@ -216,18 +301,171 @@ pub fn read_series_from(
     }
 
     let names: Vec<String> = layout.series.iter().map(|&c| header[c].clone()).collect();
+    let mut warnings = Vec::new();
+    let (time, time_axis) = match layout.time {
+        None => (None, None),
+        Some(tc) => {
+            let axis = TimeAxisInput {
+                file: &file,
+                column: &header[tc],
+                values: &times,
+                text: &time_text,
+                rows: &time_rows,
+            };
+            let (time, axis) = axis.check(opts, &mut columns, &mut missing, &mut warnings)?;
+            (Some(time), Some(axis))
+        }
+    };
     for (name, values) in names.iter().zip(&columns) {
         check_series(&file, name, values)?;
+    }
+    if layout.series.first() == Some(&0)
+        && columns[0].len() >= 3
+        && columns[0].windows(2).all(|w| w[1] > w[0])
+    {
+        warnings.push(format!(
+            "the first column `{}` rises on every row like a time axis, but is analysed as a \
+             series; if it is the time, pass --time-column {}",
+            header[0], header[0]
+        ));
     }
 
     Ok(SeriesTable {
         time_column: layout.time.map(|c| header[c].clone()),
         time,
+        time_axis,
         names,
         columns,
         missing,
+        warnings,
         sha256: csv.finish_hex(),
     })
+}
+
+/// The time column as read, before its spacing is checked.
+struct TimeAxisInput<'a> {
+    file: &'a str,
+    column: &'a str,
+    values: &'a [TimeValue],
+    text: &'a [String],
+    rows: &'a [u64],
+}
+
+impl TimeAxisInput<'_> {
+    /// Check the spacing; fill whole missing steps with empty rows when asked.
+    fn check(
+        &self,
+        opts: &ReadOptions,
+        columns: &mut [Vec<f64>],
+        missing: &mut [usize],
+        warnings: &mut Vec<String>,
+    ) -> Result<(Vec<f64>, TimeAxis), InputError> {
+        let values: Vec<f64> = self.values.iter().map(|v| v.value).collect();
+        let mut axis = TimeAxis {
+            column: self.column.to_string(),
+            kind: self.values.first().map_or(TimeKind::Number, |v| v.kind),
+            first: self.text.first().cloned().unwrap_or_default(),
+            last: self.text.last().cloned().unwrap_or_default(),
+            step: String::new(),
+            uneven_steps: 0,
+            filled_rows: 0,
+        };
+        if self.values.len() < 2 {
+            return Ok((values, axis));
+        }
+        let sp = spacing(self.values);
+        axis.step = sp.step.clone();
+        axis.uneven_steps = sp.uneven();
+        let Some(first_bad) = sp.first_uneven() else {
+            return Ok((values, axis));
+        };
+        let whole = sp.multiples.iter().all(Option::is_some);
+        let refuse = |fix: &str| InputError::UnevenSteps {
+            file: self.file.to_string(),
+            row: self.rows[first_bad + 1],
+            column: self.column.to_string(),
+            detail: format!(
+                "the step from {} to {} is {}, but the usual step is {} ({} of {} steps differ)",
+                self.text[first_bad],
+                self.text[first_bad + 1],
+                sp.words(first_bad),
+                sp.step,
+                sp.uneven(),
+                sp.multiples.len()
+            ),
+            fix: fix.to_string(),
+        };
+        match opts.uneven_steps {
+            UnevenSteps::Refuse => {
+                let fix = if whole {
+                    "Every uneven step skips whole steps: add empty rows for the skipped times \
+                     (or pass --uneven-steps fill-gaps to have them added as missing values), \
+                     or pass --uneven-steps as-equal to treat the rows as equally spaced"
+                } else {
+                    "Resample the records to equal steps, or pass --uneven-steps as-equal to \
+                     treat the rows as equally spaced (only sound when the steps differ little)"
+                };
+                Err(refuse(fix))
+            }
+            UnevenSteps::AsEqual => {
+                warnings.push(format!(
+                    "time axis `{}`: {} of {} steps differ from the usual {}; the rows are \
+                     treated as equally spaced, as asked",
+                    self.column,
+                    sp.uneven(),
+                    sp.multiples.len(),
+                    sp.step
+                ));
+                Ok((values, axis))
+            }
+            UnevenSteps::FillGaps if !whole => Err(refuse(
+                "Some uneven steps are not whole multiples of the usual step, so no empty rows \
+                 can fill them: resample the records to equal steps, or pass --uneven-steps \
+                 as-equal to treat the rows as equally spaced",
+            )),
+            UnevenSteps::FillGaps => {
+                let added: usize = sp.multiples.iter().map(|m| m.unwrap_or(1) - 1).sum();
+                let total = values.len().saturating_add(added);
+                if total > opts.max_rows || total.saturating_mul(columns.len()) > opts.max_cells {
+                    return Err(InputError::TooManyRows {
+                        file: self.file.to_string(),
+                        row: self.rows[first_bad + 1],
+                        limit: opts.max_rows.min(opts.max_cells / columns.len().max(1)),
+                    });
+                }
+                let mut time = Vec::with_capacity(total);
+                let mut filled: Vec<Vec<f64>> =
+                    columns.iter().map(|_| Vec::with_capacity(total)).collect();
+                for i in 0..values.len() {
+                    if i > 0 {
+                        let k = sp.multiples[i - 1].unwrap_or(1);
+                        for j in 1..k {
+                            let f = j as f64 / k as f64;
+                            time.push(values[i - 1] + f * (values[i] - values[i - 1]));
+                            for col in &mut filled {
+                                col.push(f64::NAN);
+                            }
+                        }
+                    }
+                    time.push(values[i]);
+                    for (col, src) in filled.iter_mut().zip(columns.iter()) {
+                        col.push(src[i]);
+                    }
+                }
+                for ((col, src), m) in columns.iter_mut().zip(filled).zip(missing.iter_mut()) {
+                    *col = src;
+                    *m += added;
+                }
+                axis.filled_rows = added;
+                warnings.push(format!(
+                    "time axis `{}`: {added} skipped time points (steps of {}) were added as \
+                     rows with every series missing",
+                    self.column, sp.step
+                ));
+                Ok((time, axis))
+            }
+        }
+    }
 }
 
 /// Which header position is the time axis and which are series.
@@ -256,7 +494,7 @@ impl Layout {
             ),
             None => header
                 .first()
-                .filter(|h| h.eq_ignore_ascii_case("t") || h.eq_ignore_ascii_case("time"))
+                .filter(|h| TIME_COLUMN_NAMES.iter().any(|n| h.eq_ignore_ascii_case(n)))
                 .map(|_| 0),
         };
         let series: Vec<usize> = (0..header.len()).filter(|&c| Some(c) != time).collect();
@@ -266,25 +504,40 @@ impl Layout {
                 file: file.to_string(),
                 found: series.len(),
                 names: show_names(&names),
-                hint: too_few_hint(header),
+                hint: too_few_hint(header, None, false),
             });
         }
         Ok(Self { time, series })
     }
 }
 
-fn too_few_hint(header: &[String]) -> String {
+/// Why a table has too few series, from its header and (when read) its first data row.
+fn too_few_hint(header: &[String], first_row: Option<&str>, decimal_comma: bool) -> String {
     let joined = header.join(",");
-    if header.len() == 1 && joined.contains(';') {
-        "The header holds `;` but no `,`: the file seems to use semicolons between fields. \
-         Save it as comma-separated CSV"
-            .to_string()
-    } else if header.len() == 1 && joined.contains('\t') {
-        "The header holds tabs but no `,`: the file seems to be tab-separated. Save it as \
-         comma-separated CSV"
-            .to_string()
+    let separator = if header.len() != 1 {
+        None
+    } else if joined.contains(';') {
+        Some((';', "semicolons", "--delimiter ';'"))
+    } else if joined.contains('\t') {
+        Some(('\t', "tabs", "--delimiter tab"))
     } else {
-        "Add another series column (the time column, if any, does not count)".to_string()
+        None
+    };
+    let Some((sep, seps, flag)) = separator else {
+        return "Add another series column (the time column, if any, does not count)".to_string();
+    };
+    let commas = first_row.is_some_and(|row| row.split(sep).any(|c| is_decimal_comma(c.trim())));
+    if commas && !decimal_comma {
+        format!(
+            "The header holds {seps} but no `,`, and the numbers on row 2 use decimal commas \
+             (3,25): the file is a spreadsheet export with {seps} between fields and commas as \
+             decimal separators. Pass {flag} --decimal-comma to read it as it is"
+        )
+    } else {
+        format!(
+            "The header holds {seps} but no `,`: the file seems to use {seps} between fields. \
+             Pass {flag} to read it as it is, or save it as comma-separated CSV"
+        )
     }
 }
 

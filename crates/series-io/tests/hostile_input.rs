@@ -102,13 +102,25 @@ rejects!(
     semicolon_separated,
     b"t;a;b\n0;1,5;2\n",
     InputError::TooFewSeries { .. },
-    ["row 1", "semicolons", "comma-separated"]
+    // One message names both fixes (a spreadsheet export in a European number format).
+    [
+        "row 1",
+        "semicolons",
+        "decimal commas",
+        "--delimiter ';' --decimal-comma"
+    ]
+);
+rejects!(
+    semicolon_separated_with_points,
+    b"t;a;b\n0;1.5;2\n",
+    InputError::TooFewSeries { .. },
+    ["row 1", "semicolons", "--delimiter ';'", "comma-separated"]
 );
 rejects!(
     tab_separated,
     b"t\ta\tb\n0\t1\t2\n",
     InputError::TooFewSeries { .. },
-    ["row 1", "tab-separated"]
+    ["row 1", "tabs", "--delimiter tab"]
 );
 rejects!(
     duplicate_names,
@@ -340,13 +352,31 @@ rejects!(
     InputError::NotNumeric { row: 3, .. },
     ["row 3", "column `b`", "\"high\"", "write NA"]
 );
-rejects!(
-    date_in_time_column,
-    b"time,a,b\n2024-01-01,1,2\n2024-01-02,2,1\n",
-    InputError::NotNumeric { row: 2, .. },
-    ["row 2", "column `time`", "date", "days or seconds"]
+accepts!(
+    iso_dates_in_time_column,
+    b"time,a,b\n2024-01-01,1,2\n2024-01-02,2,1\n2024-01-03,3,3\n",
+    |t| {
+        let axis = t.time_axis.as_ref().unwrap();
+        assert_eq!(axis.kind, series_io::TimeKind::Date);
+        assert_eq!(axis.step, "1 day");
+        assert_eq!(
+            (axis.first.as_str(), axis.last.as_str()),
+            ("2024-01-01", "2024-01-03")
+        );
+    }
 );
-
+rejects!(
+    day_first_date_in_time_column,
+    b"time,a,b\n31/01/2024,1,2\n01/02/2024,2,1\n",
+    InputError::NotNumeric { row: 2, .. },
+    ["row 2", "column `time`", "ISO 8601", "2020-01-31"]
+);
+rejects!(
+    date_in_series_column,
+    b"t,a,b\n0,2024-01-01,2\n1,2024-01-02,1\n",
+    InputError::NotNumeric { row: 2, .. },
+    ["row 2", "column `a`", "date", "--time-column"]
+);
 // --- missing and special values ---
 accepts!(
     nan_na_and_empty_cells_are_missing,
@@ -612,4 +642,151 @@ fn unreadable_source_is_an_io_error() {
             .starts_with("/nonexistent/x.csv: the file could not be read"),
         "{err}"
     );
+}
+
+// --- time axes as field data has them (dates, spreadsheet exports, uneven steps) ---
+
+fn read_with(input: &[u8], opts: &ReadOptions) -> Result<SeriesTable, InputError> {
+    read_series_from(input, FILE, opts)
+}
+
+#[test]
+fn weekly_date_column_is_the_axis() {
+    let csv = b"Date,kelp,urchin\n2021-03-01,1,5\n2021-03-08,2,4\n2021-03-15,3,6\n2021-03-22,2,5\n";
+    let t = read(csv).unwrap();
+    assert_eq!(t.time_column.as_deref(), Some("Date"));
+    assert_eq!(t.names, ["kelp", "urchin"]);
+    // Days since 1970-01-01: 2021-03-01 is day 18,687 (Unix time 1,614,556,800 s / 86,400).
+    assert_eq!(t.time.as_deref().unwrap()[0], 18_687.0);
+    assert_eq!(t.time_axis.as_ref().unwrap().step, "7 days");
+    assert!(t.warnings.is_empty());
+}
+
+#[test]
+fn every_axis_name_is_recognised() {
+    for name in [
+        "t", "TIME", "date", "DateTime", "year", "Month", "week", "day",
+    ] {
+        let csv = format!("{name},a,b\n1,1,2\n2,2,1\n3,3,3\n");
+        let t = read(csv.as_bytes()).unwrap();
+        assert_eq!(t.time_column.as_deref(), Some(name), "{name}");
+    }
+}
+
+#[test]
+fn date_times_with_zones_are_converted_to_utc() {
+    let csv = b"datetime,a,b\n2020-01-31T06:00+01:00,1,2\n2020-01-31T11:00Z,2,1\n2020-01-31T13:00:00-04:00,3,3\n";
+    let t = read(csv).unwrap();
+    let axis = t.time_axis.unwrap();
+    assert_eq!(axis.kind, series_io::TimeKind::DateTime);
+    assert_eq!(axis.step, "6 hours");
+    let time = t.time.unwrap();
+    assert_eq!(time[1] - time[0], 6.0 * 3600.0);
+}
+
+#[test]
+fn monthly_dates_step_in_months() {
+    // Months have 28-31 days; records on the same day of each month are equally spaced.
+    let csv = b"month,a,b\n2019-11-01,1,2\n2019-12-01,2,1\n2020-01-01,3,3\n2020-02-01,1,1\n2020-03-01,2,2\n";
+    let t = read(csv).unwrap();
+    assert_eq!(t.time_axis.unwrap().step, "1 month");
+}
+
+rejects!(
+    weekly_table_with_a_missing_week,
+    b"date,a,b\n2021-03-01,1,2\n2021-03-08,2,1\n2021-03-22,3,3\n2021-03-29,1,1\n",
+    InputError::UnevenSteps { row: 4, .. },
+    [
+        "row 4",
+        "1 of 3 steps differ",
+        "column `date`",
+        "2021-03-08 to 2021-03-22",
+        "14 days",
+        "usual step is 7 days",
+        "equal time steps",
+        "--uneven-steps fill-gaps",
+        "--uneven-steps as-equal"
+    ]
+);
+rejects!(
+    numeric_axis_with_uneven_steps,
+    b"t,a,b\n0,1,2\n1,2,1\n2.5,3,3\n3.5,1,1\n",
+    InputError::UnevenSteps { row: 4, .. },
+    [
+        "row 4",
+        "column `t`",
+        "1.5",
+        "usual step is 1",
+        "Resample",
+        "as-equal"
+    ]
+);
+rejects!(
+    mixed_dates_and_numbers,
+    b"date,a,b\n2021-03-01,1,2\n18700,2,1\n",
+    InputError::TimeKindMixed { row: 3, .. },
+    ["row 3", "column `date`", "number", "date", "one form"]
+);
+
+#[test]
+fn filled_gaps_become_missing_rows() {
+    let csv = b"date,a,b\n2021-03-01,1,2\n2021-03-08,2,1\n2021-03-22,3,3\n2021-03-29,1,1\n";
+    let opts = ReadOptions::default().with_uneven_steps(series_io::UnevenSteps::FillGaps);
+    let t = read_with(csv, &opts).unwrap();
+    assert_eq!(t.n_rows(), 5);
+    assert!(t.columns[0][2].is_nan() && t.columns[1][2].is_nan());
+    assert_eq!(t.columns[0][3], 3.0);
+    assert_eq!(t.missing, [1, 1]);
+    let time = t.time.as_deref().unwrap();
+    assert_eq!(time[2] - time[1], 7.0);
+    assert_eq!(t.time_axis.as_ref().unwrap().filled_rows, 1);
+    assert!(
+        t.warnings[0].contains("1 skipped time points"),
+        "{:?}",
+        t.warnings
+    );
+    // A step of 1.5 usual steps cannot be filled with whole rows.
+    let err = read_with(b"t,a,b\n0,1,2\n1,2,1\n2.5,3,3\n", &opts).unwrap_err();
+    assert!(err.to_string().contains("not whole multiples"), "{err}");
+}
+
+#[test]
+fn uneven_steps_as_equal_proceed_with_a_warning() {
+    let opts = ReadOptions::default().with_uneven_steps(series_io::UnevenSteps::AsEqual);
+    let t = read_with(b"t,a,b\n0,1,2\n1,2,1\n2.5,3,3\n3.5,1,1\n", &opts).unwrap();
+    assert_eq!(t.n_rows(), 4);
+    assert_eq!(t.time_axis.as_ref().unwrap().uneven_steps, 1);
+    assert!(t.warnings[0].contains("1 of 3 steps"), "{:?}", t.warnings);
+}
+
+#[test]
+fn an_unchosen_rising_first_column_is_warned_about() {
+    let t = read(b"yr,a,b\n1990,1,2\n1991,2,1\n1992,3,3\n").unwrap();
+    assert_eq!(t.names, ["yr", "a", "b"]);
+    assert_eq!(t.warnings.len(), 1);
+    assert!(t.warnings[0].contains("`yr`") && t.warnings[0].contains("--time-column yr"));
+    assert!(!t.warnings[0].contains('\n'));
+    // Not rising: no warning.
+    let t = read(b"yr,a,b\n1990,1,2\n1989,2,1\n1992,3,3\n").unwrap();
+    assert!(t.warnings.is_empty());
+}
+
+#[test]
+fn semicolon_export_with_decimal_commas_in_one_step() {
+    let csv = "Datum;Temperatur;Salzgehalt\r\n2021-03-01;4,5;31,2\r\n2021-03-08;5,25;30,9\r\n2021-03-15;NA;31\r\n";
+    let opts = ReadOptions::default()
+        .with_delimiter(b';')
+        .with_decimal_comma(true)
+        .with_time_column("Datum");
+    let t = read_with(csv.as_bytes(), &opts).unwrap();
+    assert_eq!(t.names, ["Temperatur", "Salzgehalt"]);
+    assert_eq!(t.columns[0][1], 5.25);
+    assert_eq!(t.columns[1][2], 31.0);
+    assert_eq!(t.missing, [1, 0]);
+    // The semicolons alone, without --decimal-comma: the cell's hint names the option.
+    let opts = ReadOptions::default()
+        .with_delimiter(b';')
+        .with_time_column("Datum");
+    let err = read_with(csv.as_bytes(), &opts).unwrap_err();
+    assert!(err.to_string().contains("--decimal-comma"), "{err}");
 }

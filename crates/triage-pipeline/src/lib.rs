@@ -26,6 +26,8 @@ pub mod model_source;
 pub mod orchestration;
 mod quality;
 mod report_view;
+pub mod reviewed;
+mod selection;
 pub mod settings;
 pub mod tables;
 mod training;
@@ -35,7 +37,10 @@ pub use assemble::{PairRecord, assemble, assemble_curves, cycles};
 pub use estimate::WorkEstimate;
 pub use judge::{Judgement, judge, rule_of_thumb};
 pub use quality::{QualityThresholds, quality_flags};
-pub use report_view::{CycleFact, KEY_FEATURES, RunFacts, cycle_facts, report_view};
+pub use report_view::{
+    CycleFact, KEY_FEATURES, RunFacts, cycle_facts, report_view, table_rows, verdict_kind,
+};
+pub use selection::{PairSelection, ResolvedSelection};
 pub use training::{
     AnalysedSystem, SkippedSystem, analyse_systems, analyse_systems_until, fine_label, series_of,
     training_set,

@@ -14,6 +14,7 @@ use verdict_model::{
 
 use crate::model_source::LoadedModel;
 use crate::orchestration::{Cancelled, Observer};
+use crate::reviewed::Reviewed;
 use crate::settings::{EngineSettings, analysis_settings_json};
 use crate::{AnalysedSystem, AnalysisSettings, SkippedSystem, judge, rule_of_thumb};
 
@@ -101,6 +102,8 @@ pub struct Trained {
     pub skipped: Vec<SkippedSystem>,
     /// The analysis settings.
     pub settings: AnalysisSettings,
+    /// Reviewer decisions added as training rows (reported apart in the model card).
+    pub reviewed: Reviewed,
 }
 
 /// Train and calibrate a model on the systems of the spec at `spec_path`, choosing each
@@ -114,11 +117,20 @@ pub fn train(
     let (spec, identity) = read_spec(spec_path)?;
     let settings = engine.analysis_settings()?;
     train_spec(
-        spec_path, &spec, identity, suite, engine, &settings, observer,
+        spec_path,
+        &spec,
+        identity,
+        suite,
+        engine,
+        &settings,
+        Reviewed::default(),
+        observer,
     )
 }
 
-/// [`train`] on a spec already read; the output folder can be prepared in between.
+/// [`train`] on a spec already read, with reviewer decisions as extra rows (read by
+/// [`Reviewed::read`]); the output folder can be prepared in between.
+#[allow(clippy::too_many_arguments)]
 pub fn train_spec(
     spec_path: &Path,
     spec: &Spec,
@@ -126,10 +138,12 @@ pub fn train_spec(
     suite: Option<&Path>,
     engine: &EngineSettings,
     settings: &AnalysisSettings,
+    reviewed: Reviewed,
     observer: &dyn Observer,
 ) -> anyhow::Result<Trained> {
     let (systems, skipped) = analysed(spec, settings, observer)?;
-    let set = crate::training_set(&systems);
+    let mut set = crate::training_set(&systems);
+    reviewed.add_to(&mut set);
     anyhow::ensure!(
         !set.rows.is_empty(),
         "spec {} produced no usable pairs; raise the counts or lengths in it",
@@ -177,13 +191,19 @@ pub fn train_spec(
         set,
         skipped,
         settings: settings.clone(),
+        reviewed,
     })
 }
 
 /// The files of `train`; model.bin last (its presence marks a finished training run).
 pub fn write_trained(out: &OutputDir, t: &Trained) -> anyhow::Result<()> {
     let card = t.bundle.card();
-    out.write_bytes("model-card.md", card.to_markdown().as_bytes())?;
+    let mut markdown = card.to_markdown();
+    if !t.reviewed.is_empty() {
+        markdown.push_str(&t.reviewed.card_section(card));
+        out.export(&t.reviewed.table())?;
+    }
+    out.write_bytes("model-card.md", markdown.as_bytes())?;
     out.write_bytes("model-card.json", card.to_json()?.as_bytes())?;
     out.write_bytes(
         "reliability.svg",

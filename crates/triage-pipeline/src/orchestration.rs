@@ -19,11 +19,12 @@ use anyhow::{Context, bail};
 use crossmap_engine::{Embedding, PairEnsemble};
 use ensemble_features::Ensemble;
 use rayon::prelude::*;
-use series_io::{DirLock, JsonDocument, OutputDir, ReadOptions, SeriesTable, TextDocument};
+use series_io::{DecisionFile, DirLock, JsonDocument, OutputDir, SeriesTable, TextDocument};
 use verdict_model::{Verdict, VerdictPolicy};
 
 use crate::model_source::{LoadedModel, model_record};
-use crate::settings::{EngineSettings, analysis_settings_json};
+use crate::selection::{PairSelection, ResolvedSelection};
+use crate::settings::{EngineSettings, TableSettings, analysis_settings_json};
 use crate::tables;
 use crate::units::{self, InputIdentity, ShardSpec, StoreManifest, UnitStore};
 use crate::{
@@ -107,45 +108,63 @@ pub struct Prepared {
     pub params: crossmap_engine::ValidParams,
     /// Identity of the run's work units (input checksum, settings, options).
     pub manifest: StoreManifest,
+    /// The ordered pairs chosen (every pair without a choice).
+    pub selection: ResolvedSelection,
 }
 
-/// Options of reading a series table: the named time column, if any.
-pub fn read_options(time_column: Option<&str>) -> ReadOptions {
-    let mut opts = ReadOptions::default();
-    if let Some(t) = time_column {
-        opts = opts.with_time_column(t.to_string());
+impl Prepared {
+    /// The table reader's warnings (a rising first column not taken as the time axis, steps
+    /// treated as equal, filled gaps), each as one line naming `source`, for the caller to
+    /// show: the library never prints.
+    pub fn warnings(&self, source: &str) -> Vec<String> {
+        self.table
+            .warnings
+            .iter()
+            .map(|w| format!("warning: {source}: {w}"))
+            .collect()
     }
-    opts
+}
+
+/// The options a run reads its input with and scans it by: how the table is read and which
+/// pairs are chosen.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct InputChoice {
+    /// How the series table is read.
+    pub table: TableSettings,
+    /// Which ordered pairs are scanned.
+    pub select: PairSelection,
 }
 
 /// Read the table at `data`, then [`prepare_table`] it.
 pub fn prepare(
     data: &Path,
     recorded_path: &str,
-    time_column: Option<&str>,
+    choice: &InputChoice,
     engine: &EngineSettings,
     shard: ShardSpec,
 ) -> anyhow::Result<Prepared> {
     // Checked before the table is read, as the options come first.
     engine.analysis_settings()?;
-    let table = series_io::read_series(data, &read_options(time_column))?;
+    let table = series_io::read_series(data, &choice.table.read_options()?)?;
     prepare_table(
         table,
         &data.display().to_string(),
         recorded_path,
-        time_column,
+        choice,
         engine,
         shard,
     )
 }
 
 /// Embed every variable of `table` and resolve the parameters; `source` names the table in
-/// messages and `recorded_path` is the input path as written into the records.
+/// messages and `recorded_path` is the input path as written into the records. With a pair
+/// choice, only the manifolds the chosen pairs need are this run's units (of them, the
+/// shard's share).
 pub fn prepare_table(
     table: SeriesTable,
     source: &str,
     recorded_path: &str,
-    time_column: Option<&str>,
+    choice: &InputChoice,
     engine: &EngineSettings,
     shard: ShardSpec,
 ) -> anyhow::Result<Prepared> {
@@ -154,6 +173,15 @@ pub fn prepare_table(
         names: table.names.clone(),
         columns: table.columns.clone(),
     };
+    let selection = choice
+        .select
+        .resolve(&table.names)
+        .map_err(|e| anyhow::anyhow!("{source}: {e}"))?;
+    let manifolds = (!choice.select.is_all()).then(|| selection.manifolds());
+    let mut work = shard.units(table.names.len());
+    if let Some(m) = &manifolds {
+        work.retain(|u| m.contains(u));
+    }
     let context = || format!("cannot analyse {source}");
     let embeddings = crate::embed_all(&series, &settings.embedding).with_context(context)?;
     let params =
@@ -168,10 +196,16 @@ pub fn prepare_table(
             variables: table.names.clone(),
         },
         settings: settings_record(&settings, &params, &series.names),
-        flags: serde_json::json!({"engine": engine, "time_column": time_column}),
+        flags: serde_json::json!({
+            "engine": engine,
+            "time_column": choice.table.time_column,
+            "table": choice.table,
+            "select": choice.select,
+        }),
         shard,
-        units: shard.units(series.names.len()),
+        units: work,
         complete: false,
+        manifolds,
     };
     Ok(Prepared {
         settings,
@@ -181,17 +215,28 @@ pub fn prepare_table(
         embeddings,
         params,
         manifest,
+        selection,
     })
 }
 
-/// The options a shard manifest recorded: the engine settings and the time column.
-pub fn recorded_options(
-    manifest: &StoreManifest,
-) -> anyhow::Result<(EngineSettings, Option<String>)> {
-    let engine: EngineSettings = serde_json::from_value(manifest.flags["engine"].clone())
+/// The options a shard manifest recorded: the engine settings, how the table was read and
+/// the pair choice. Manifests from before the table flags and the pair choice hold only the
+/// time column: those are read as the time column, every pair.
+pub fn recorded_options(manifest: &StoreManifest) -> anyhow::Result<(EngineSettings, InputChoice)> {
+    let flags = &manifest.flags;
+    let engine: EngineSettings = serde_json::from_value(flags["engine"].clone())
         .context("the shard manifest's flags cannot be read; rerun the shards with this version")?;
-    let time_column = manifest.flags["time_column"].as_str().map(String::from);
-    Ok((engine, time_column))
+    let table = match flags.get("table") {
+        Some(v) => serde_json::from_value(v.clone())
+            .context("the shard manifest's table flags cannot be read; rerun the shards")?,
+        None => TableSettings::with_time_column(flags["time_column"].as_str()),
+    };
+    let select = match flags.get("select") {
+        Some(v) => serde_json::from_value(v.clone())
+            .context("the shard manifest's pair choice cannot be read; rerun the shards")?,
+        None => PairSelection::default(),
+    };
+    Ok((engine, InputChoice { table, select }))
 }
 
 /// Compute the manifest's units, skipping and keeping those already in `store` and saving
@@ -337,7 +382,8 @@ pub fn check_budget(
     }
     bail!(
         "{data}: the estimated work is above the budget of one process ({}). Ways out: analyse fewer \
-         variables (a table with only the columns of interest), fewer --replicates, --sizes or \
+         variables (a table with only the columns of interest, or a choice of drivers and \
+         responses), fewer --replicates, --sizes or \
          --surrogates, split the work into shards on a cluster (--shard I/N, each shard is \
          budgeted alone; see scripts/slurm-array.sh), or pass --over-budget to run it anyway",
         over.join(", ")
@@ -359,6 +405,8 @@ pub struct Finished {
     pub facts: RunFacts,
     /// The run record (run.json).
     pub run: serde_json::Value,
+    /// Reviewer decisions shown beside the verdicts (labels.csv, the report).
+    pub decisions: Option<DecisionFile>,
 }
 
 impl Finished {
@@ -392,29 +440,50 @@ impl Finished {
             files.push(Box::new(tables::surrogates(names, &self.records)));
         }
         files.push(Box::new(tables::features(names, &self.records)));
-        files.push(Box::new(tables::labels(
-            names,
-            &self.records,
-            &self.judgements,
-        )));
+        let labels = tables::labels(names, &self.records, &self.judgements);
+        files.push(Box::new(match &self.decisions {
+            Some(d) => tables::with_decisions(labels, d),
+            None => labels,
+        }));
         files
     }
 
     /// The review report (report.html).
     pub fn report_html(&self) -> anyhow::Result<String> {
-        let view = report_view(
+        let mut view = report_view(
             &self.facts,
             &self.names,
             &self.embeddings,
             &self.records,
             &self.judgements,
         );
+        if let Some(d) = &self.decisions {
+            // The report shows the names as given; the file holds them as the CSVs write them.
+            let names = self.csv_names();
+            for (pair, rec) in view.pairs.iter_mut().zip(&self.records) {
+                pair.decision = d.get(&names[rec.driver], &names[rec.response]).map(|r| {
+                    review_report::GivenDecision {
+                        decision: r.decision.as_str().into(),
+                        note: r.note.clone(),
+                        reviewer: r.reviewer.clone(),
+                        decided_at: r.decided_at.clone(),
+                    }
+                });
+            }
+        }
         Ok(review_report::render_html(&view)?)
+    }
+
+    /// Rows of the terminal verdict table, one per pair (the table sorts them).
+    pub fn table_rows(&self) -> Vec<review_report::TableRow> {
+        crate::table_rows(&self.names, &self.records, &self.judgements)
     }
 }
 
 /// Stages 3 and 4 (assemble, judge) and the run record, the same for scan and merge;
-/// `command` and `shards` are recorded in run.json.
+/// `command` and `shards` are recorded in run.json, `decisions` (from [`load_decisions`])
+/// are shown beside the verdicts.
+#[allow(clippy::too_many_arguments)]
 pub fn finish(
     p: &Prepared,
     ensembles: &[PairEnsemble],
@@ -423,8 +492,12 @@ pub fn finish(
     command: &str,
     shards: Option<serde_json::Value>,
     started: Instant,
+    decisions: Option<DecisionFile>,
 ) -> anyhow::Result<Finished> {
-    let pairs = crate::assemble(&p.series, &p.embeddings, ensembles, &p.settings);
+    let mut pairs = crate::assemble(&p.series, &p.embeddings, ensembles, &p.settings);
+    // The computed manifolds also give pairs outside the choice (their targets); only the
+    // chosen pairs are labelled and written.
+    pairs.retain(|rec| p.selection.contains(rec.driver, rec.response));
     let judgements = judge(&pairs, &model.bundle, policy)?;
     let table = &p.table;
     let cycles = cycle_facts(&p.series, &p.settings);
@@ -437,6 +510,8 @@ pub fn finish(
             "sha256": table.sha256,
             "rows": table.n_rows(),
             "time_column": table.time_column,
+            "time_axis": time_axis_record(table),
+            "warnings": table.warnings,
             "series": table.names,
             "missing_cells": table.missing,
             "missing_cells_total": table.total_missing(),
@@ -448,10 +523,20 @@ pub fn finish(
         "review_band": [policy.band.0, policy.band.1],
         "feature_schema": {"version": ensemble_features::SCHEMA_VERSION, "hash": ensemble_features::schema_hash()},
         "pairs": pairs.len(),
+        "selection": {
+            "drivers": p.manifest.flags["select"]["drivers"],
+            "responses": p.manifest.flags["select"]["responses"],
+            "manifolds": p.manifest.manifolds.as_ref().map(|m| {
+                m.iter().map(|&k| p.series.names[k].clone()).collect::<Vec<_>>()
+            }),
+        },
         "timing": {"seconds": started.elapsed().as_secs_f64(), "threads": rayon::current_num_threads()},
     });
     if let Some(shards) = shards {
         run["shards"] = shards;
+    }
+    if let Some(v) = decisions_record(decisions.as_ref()) {
+        run["decisions"] = v;
     }
     let facts = RunFacts {
         input_name: file_name(Path::new(&p.manifest.input.path)),
@@ -469,6 +554,7 @@ pub fn finish(
         judgements,
         facts,
         run,
+        decisions,
     })
 }
 
@@ -486,22 +572,30 @@ pub fn scan_in_memory(
     check_budget(p, data, over_budget, true, observer)?;
     let units = compute_units(None, p, observer)?;
     let ensembles: Vec<PairEnsemble> = units.into_values().flatten().collect();
-    finish(p, &ensembles, policy, model, "scan", None, started)
+    finish(p, &ensembles, policy, model, "scan", None, started, None)
 }
 
 /// Label ensembles computed elsewhere (a curves table at `path`): the curve-only head scores
-/// them. `recorded_path` is the input path as written into run.json.
+/// them. `recorded_path` is the input path as written into run.json; `decisions` is a
+/// reviewer's decisions file made on this same curves table, shown beside the verdicts.
 pub fn label_curves(
     path: &Path,
     recorded_path: &str,
     policy: &VerdictPolicy,
     model: &LoadedModel,
+    decisions: Option<&Path>,
 ) -> anyhow::Result<Finished> {
     let started = Instant::now();
     let (names, records) = curve_records(path)?;
     let sha = series_io::checksum::sha256_file(path)
         .with_context(|| format!("cannot read {}", path.display()))?;
-    label_records(names, records, sha, recorded_path, policy, model, started)
+    let decisions = load_decisions(decisions, &sha)?;
+    let mut finished = label_records(names, records, sha, recorded_path, policy, model, started)?;
+    if let Some(v) = decisions_record(decisions.as_ref()) {
+        finished.run["decisions"] = v;
+    }
+    finished.decisions = decisions;
+    Ok(finished)
 }
 
 /// [`label_curves`] on a curves table held in memory; `source` names it in messages.
@@ -562,6 +656,7 @@ fn label_records(
         judgements,
         facts,
         run,
+        decisions: None,
     })
 }
 
@@ -623,6 +718,55 @@ pub fn write_results(out: &OutputDir, finished: &Finished) -> anyhow::Result<()>
         value: &finished.run,
     })?;
     Ok(())
+}
+
+/// Read a reviewer's decisions file, refusing one made on another input than
+/// `input_sha256`; `None` without a file.
+pub fn load_decisions(
+    path: Option<&Path>,
+    input_sha256: &str,
+) -> anyhow::Result<Option<DecisionFile>> {
+    let Some(path) = path else {
+        return Ok(None);
+    };
+    let d = series_io::read_decisions(path)?;
+    if d.input_sha256 != input_sha256 {
+        bail!(
+            "{}: these decisions were made on another input (its sha256 is {}, this run's input \
+             has {}); give the decisions exported from a report of this same input",
+            path.display(),
+            d.input_sha256,
+            input_sha256
+        );
+    }
+    Ok(Some(d))
+}
+
+/// What run.json records about the decisions shown beside the verdicts: counts per decision.
+pub fn decisions_record(d: Option<&DecisionFile>) -> Option<serde_json::Value> {
+    d.map(|d| {
+        let count = |k: series_io::Decision| d.rows.iter().filter(|r| r.decision == k).count();
+        serde_json::json!({
+            "rows": d.rows.len(),
+            "causal": count(series_io::Decision::Causal),
+            "non_causal": count(series_io::Decision::NonCausal),
+            "unsure": count(series_io::Decision::Unsure),
+        })
+    })
+}
+
+/// The time axis as found: kind, first and last time, usual step, uneven and filled steps
+/// (`null` without a time axis).
+pub fn time_axis_record(table: &SeriesTable) -> serde_json::Value {
+    table
+        .time_axis
+        .as_ref()
+        .map_or(serde_json::Value::Null, |a| {
+            serde_json::json!({
+                "column": a.column, "kind": a.kind.as_str(), "first": a.first, "last": a.last,
+                "step": a.step, "uneven_steps": a.uneven_steps, "filled_rows": a.filled_rows,
+            })
+        })
 }
 
 /// The paths given, without the absent ones.
@@ -698,4 +842,59 @@ fn missing_notes(names: &[String], missing: &[usize], embeddings: &[Embedding]) 
         }
     }
     notes
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn manifest(flags: serde_json::Value) -> StoreManifest {
+        StoreManifest {
+            format: units::UNITS_FORMAT.into(),
+            version: units::UNITS_VERSION,
+            tool_version: "0".into(),
+            input: InputIdentity {
+                path: "d.csv".into(),
+                sha256: "ab".repeat(32),
+                variables: vec!["a".into(), "b".into(), "c".into()],
+            },
+            settings: serde_json::json!({"seed": 1}),
+            flags,
+            shard: ShardSpec::WHOLE,
+            units: vec![0, 1, 2],
+            complete: true,
+            manifolds: None,
+        }
+    }
+
+    #[test]
+    fn recorded_options_round_trip_and_old_manifests() {
+        let choice = InputChoice {
+            table: TableSettings {
+                time_column: Some("date".into()),
+                delimiter: Some(';'),
+                decimal_comma: true,
+                uneven_steps: "fill-gaps".into(),
+            },
+            select: PairSelection {
+                drivers: Some(vec!["a".into()]),
+                responses: None,
+            },
+        };
+        let engine = EngineSettings::default();
+        let m = manifest(serde_json::json!({
+            "engine": engine,
+            "time_column": choice.table.time_column,
+            "table": choice.table,
+            "select": choice.select,
+        }));
+        let (e, c) = recorded_options(&m).unwrap();
+        assert_eq!((e, c), (engine.clone(), choice));
+        // A manifest written before the table flags and the pair choice: the time column,
+        // every pair.
+        let old = manifest(serde_json::json!({"engine": engine, "time_column": "t"}));
+        let (_, c) = recorded_options(&old).unwrap();
+        assert_eq!(c.table, TableSettings::with_time_column(Some("t")));
+        assert!(c.select.is_all());
+    }
 }

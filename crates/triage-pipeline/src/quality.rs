@@ -32,7 +32,7 @@ impl Default for QualityThresholds {
 /// driver and both directions converge; the lag of best skill then tells them apart. A true
 /// driver is best estimated from the response's state at a negative or zero cross-map lag, so
 /// a clearly better skill after zero while both directions converge is suspicious. "Clearly"
-/// is a significance margin ([`lag_peak_after_zero`]): where a weak link runs against strong
+/// is a significance margin (`lag_peak_after_zero`): where a weak link runs against strong
 /// forcing (the two-way coupled maps of Sugihara et al. 2012), the profile is flat and its
 /// arg-max falls on either side by chance.
 pub fn quality_flags(evidence: &PairEvidence, t: &QualityThresholds) -> QualityFlags {

@@ -1,7 +1,7 @@
 //! Fill the report's view model from the pipeline's results.
 
 use crossmap_engine::Embedding;
-use review_report::{EmbeddingRow, PairView, ReportData, VerdictKind};
+use review_report::{EmbeddingRow, PairView, ReportData, TableRow, VerdictKind};
 use verdict_model::Verdict;
 
 use crate::{Judgement, PairRecord};
@@ -91,6 +91,37 @@ fn reasons_view(j: &Judgement) -> Vec<(String, String)> {
     out
 }
 
+/// The report's word for a verdict.
+pub fn verdict_kind(v: Verdict) -> VerdictKind {
+    match v {
+        Verdict::Causal => VerdictKind::Causal,
+        Verdict::NonCausal => VerdictKind::NonCausal,
+        Verdict::Review => VerdictKind::Review,
+    }
+}
+
+/// Rows of the terminal verdict table ([`review_report::verdict_table`]), one per pair, in
+/// the records' order (the table sorts them), without extra columns.
+pub fn table_rows(
+    names: &[String],
+    records: &[PairRecord],
+    judgements: &[Judgement],
+) -> Vec<TableRow> {
+    records
+        .iter()
+        .zip(judgements)
+        .map(|(rec, j)| TableRow {
+            driver: names[rec.driver].clone(),
+            response: names[rec.response].clone(),
+            p_causal: j.p_causal,
+            verdict: verdict_kind(j.verdict),
+            reasons: j.reasons.iter().map(|r| r.code().to_string()).collect(),
+            extra: Vec::new(),
+            flagged: false,
+        })
+        .collect()
+}
+
 /// Report view of a run. `embeddings` may be empty (ensembles computed elsewhere).
 pub fn report_view(
     facts: &RunFacts,
@@ -110,20 +141,19 @@ pub fn report_view(
             driver: names[rec.driver].clone(),
             response: names[rec.response].clone(),
             p_causal: j.p_causal,
-            verdict: match j.verdict {
-                Verdict::Causal => VerdictKind::Causal,
-                Verdict::NonCausal => VerdictKind::NonCausal,
-                Verdict::Review => VerdictKind::Review,
-            },
+            verdict: verdict_kind(j.verdict),
             reasons: reasons_view(j),
             library_sizes: rec.evidence.forward.library_sizes.clone(),
             forward: rec.evidence.forward.skills.clone(),
-            reverse: rec
+            // The opposite direction is drawn at its own sizes when they differ: the two
+            // variables' embeddings can leave different usable lengths.
+            reverse: rec.evidence.reverse.as_ref().map(|r| r.skills.clone()),
+            reverse_library_sizes: rec
                 .evidence
                 .reverse
                 .as_ref()
-                .filter(|r| r.library_sizes == rec.evidence.forward.library_sizes)
-                .map(|r| r.skills.clone()),
+                .filter(|r| r.library_sizes != rec.evidence.forward.library_sizes)
+                .map(|r| r.library_sizes.clone()),
             lag_profile: rec
                 .evidence
                 .lag
@@ -136,6 +166,7 @@ pub fn report_view(
                 .zip(&index)
                 .map(|(name, k)| (name.to_string(), k.and_then(|k| rec.features[k])))
                 .collect(),
+            decision: None,
         })
         .collect();
     ReportData {

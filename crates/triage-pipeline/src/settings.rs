@@ -130,6 +130,104 @@ impl EngineSettings {
     }
 }
 
+/// How the series table is read, as given: the time column, separator, decimal comma and
+/// what to do with uneven time steps. Shard manifests record it under `flags.table`, so its
+/// serialised field names are part of the shard format.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct TableSettings {
+    /// Name of the time column (default: a first column named `t`, `time`, `date`,
+    /// `datetime`, `year`, `month`, `week` or `day`, in any case).
+    #[serde(default)]
+    pub time_column: Option<String>,
+    /// Field separator (default `,`); see [`parse_delimiter`].
+    #[serde(default)]
+    pub delimiter: Option<char>,
+    /// Numbers are written with a decimal comma (`3,25`).
+    #[serde(default)]
+    pub decimal_comma: bool,
+    /// Uneven time steps: `refuse`, `fill-gaps` or `as-equal` (see [`UNEVEN_STEPS`]).
+    #[serde(default = "refuse")]
+    pub uneven_steps: String,
+}
+
+/// The accepted values of [`TableSettings::uneven_steps`].
+pub const UNEVEN_STEPS: [&str; 3] = ["refuse", "fill-gaps", "as-equal"];
+
+fn refuse() -> String {
+    "refuse".into()
+}
+
+impl Default for TableSettings {
+    fn default() -> Self {
+        Self {
+            time_column: None,
+            delimiter: None,
+            decimal_comma: false,
+            uneven_steps: refuse(),
+        }
+    }
+}
+
+impl TableSettings {
+    /// Only the time column named, the rest at the defaults.
+    pub fn with_time_column(time_column: Option<&str>) -> Self {
+        Self {
+            time_column: time_column.map(String::from),
+            ..Self::default()
+        }
+    }
+
+    /// The reader's options; an unknown `uneven_steps` or a separator that cannot separate
+    /// fields is refused.
+    pub fn read_options(&self) -> anyhow::Result<series_io::ReadOptions> {
+        let uneven = match self.uneven_steps.as_str() {
+            "refuse" => series_io::UnevenSteps::Refuse,
+            "fill-gaps" => series_io::UnevenSteps::FillGaps,
+            "as-equal" => series_io::UnevenSteps::AsEqual,
+            other => bail!(
+                "uneven steps `{other}`: give one of {}",
+                UNEVEN_STEPS.join(", ")
+            ),
+        };
+        let mut opts = series_io::ReadOptions::default()
+            .with_decimal_comma(self.decimal_comma)
+            .with_uneven_steps(uneven);
+        if let Some(d) = self.delimiter {
+            let d = parse_delimiter(&d.to_string()).map_err(anyhow::Error::msg)?;
+            // parse_delimiter only accepts ASCII separators.
+            opts = opts.with_delimiter(d as u8);
+        }
+        if let Some(t) = &self.time_column {
+            opts = opts.with_time_column(t.clone());
+        }
+        Ok(opts)
+    }
+}
+
+/// A field separator: one ASCII punctuation character, or the word `tab`.
+pub fn parse_delimiter(text: &str) -> Result<char, String> {
+    let c = match text {
+        "tab" | "\\t" | "\t" => '\t',
+        _ => {
+            let mut chars = text.chars();
+            match (chars.next(), chars.next()) {
+                (Some(c), None) => c,
+                _ => {
+                    return Err(format!(
+                        "give one character such as ; or the word tab, not `{text}`"
+                    ));
+                }
+            }
+        }
+    };
+    if !c.is_ascii() || matches!(c, '"' | '\n' | '\r') || c.is_ascii_alphanumeric() {
+        return Err(format!(
+            "`{text}` cannot separate fields: give an ASCII punctuation character such as ; or |, or tab"
+        ));
+    }
+    Ok(c)
+}
+
 /// `sizes`: one whole number is a count of log-spaced sizes, a comma list is explicit.
 pub fn parse_sizes(text: &str) -> anyhow::Result<LibrarySizes> {
     let parts: Vec<&str> = text.split(',').map(str::trim).collect();
@@ -223,6 +321,23 @@ mod tests {
         assert!(parse_sizes("40,20").is_err());
         assert!(parse_sizes("1").is_err());
         assert!(parse_sizes("ten").is_err());
+    }
+
+    #[test]
+    fn table_settings_read_options() {
+        assert!(TableSettings::default().read_options().is_ok());
+        let bad = TableSettings {
+            uneven_steps: "sometimes".into(),
+            ..TableSettings::default()
+        };
+        assert!(bad.read_options().is_err());
+        assert_eq!(parse_delimiter("tab"), Ok('\t'));
+        assert_eq!(parse_delimiter(";"), Ok(';'));
+        assert!(parse_delimiter("a").is_err());
+        assert!(parse_delimiter(";;").is_err());
+        // Manifests from before the other table flags hold only the time column.
+        let old: TableSettings = serde_json::from_str(r#"{"time_column":"date"}"#).unwrap();
+        assert_eq!(old, TableSettings::with_time_column(Some("date")));
     }
 
     #[test]

@@ -24,6 +24,33 @@ fn opt(v: Option<f64>) -> String {
     v.map(format_f64).unwrap_or_default()
 }
 
+/// `labels.csv` with a reviewer's decisions beside the model's: `reviewer_decision`
+/// (`causal`, `non-causal`, `unsure`, empty when the pair was not decided),
+/// `reviewer_note`, `reviewer`, `decided_at`. Names are matched as written in the CSV files.
+pub fn with_decisions(mut labels: CsvTable, decisions: &series_io::DecisionFile) -> CsvTable {
+    labels.header.extend(
+        [
+            "reviewer_decision",
+            "reviewer_note",
+            "reviewer",
+            "decided_at",
+        ]
+        .map(String::from),
+    );
+    for row in &mut labels.rows {
+        match decisions.get(&row[0], &row[1]) {
+            Some(d) => row.extend([
+                d.decision.as_str().to_string(),
+                d.note.clone(),
+                d.reviewer.clone(),
+                d.decided_at.clone(),
+            ]),
+            None => row.extend(std::iter::repeat_n(String::new(), 4)),
+        }
+    }
+    labels
+}
+
 /// `curves.csv`: one row per ensemble member; replicates are numbered from 1.
 ///
 /// Written row by row: at 100 variables the table has about 12 million rows, which as

@@ -215,6 +215,10 @@ pub struct StoreManifest {
     pub units: Vec<usize>,
     /// True once every planned unit is saved.
     pub complete: bool,
+    /// The manifolds (units) a run with a pair selection computes; absent when it computes
+    /// every one (so manifests without a selection keep their earlier form).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub manifolds: Option<Vec<usize>>,
 }
 
 /// The input a unit store was computed from.
@@ -711,8 +715,12 @@ impl UnitShape {
 pub struct MergePlan {
     /// The first shard's manifest (all are the same run).
     pub manifest: StoreManifest,
-    /// `sources[u]`: index (into the given directories) of the shard holding unit `u`.
+    /// `sources[u]`: index (into the given directories) of the shard holding unit `u`
+    /// (unused for units outside `units`).
     pub sources: Vec<usize>,
+    /// The units the run computes, ascending: every unit, or the manifolds its pair selection
+    /// needs.
+    pub units: Vec<usize>,
 }
 
 /// Check that shard stores belong together and hold every unit exactly once.
@@ -778,7 +786,12 @@ pub fn plan_merge(dirs: &[PathBuf]) -> Result<MergePlan, UnitsError> {
             sources[u] = Some(k);
         }
     }
-    let missing: Vec<usize> = (0..n).filter(|&u| sources[u].is_none()).collect();
+    let expected: Vec<usize> = first.manifolds.clone().unwrap_or_else(|| (0..n).collect());
+    let missing: Vec<usize> = expected
+        .iter()
+        .copied()
+        .filter(|&u| u < n && sources[u].is_none())
+        .collect();
     if !missing.is_empty() {
         let names: Vec<&str> = missing
             .iter()
@@ -801,13 +814,15 @@ pub fn plan_merge(dirs: &[PathBuf]) -> Result<MergePlan, UnitsError> {
     Ok(MergePlan {
         manifest: first,
         sources: sources.into_iter().map(|s| s.unwrap_or_default()).collect(),
+        units: expected,
     })
 }
 
 /// Every unit of a checked merge, read from its shard directory, in unit order.
 pub fn load_merge(dirs: &[PathBuf], plan: &MergePlan) -> Result<Vec<PairEnsemble>, UnitsError> {
     let mut all = Vec::new();
-    for (u, &k) in plan.sources.iter().enumerate() {
+    for &u in &plan.units {
+        let k = plan.sources[u];
         all.extend(read_unit(
             &dirs[k].join(unit_file_name(u)),
             u,
@@ -922,6 +937,7 @@ mod tests {
             shard,
             units: shard.units(3),
             complete: true,
+            manifolds: None,
         }
     }
 

@@ -308,8 +308,9 @@ def scan(data: Any, time: Optional[str] = None, seed: int = 1, *, dim: Optional[
         The table: one column per series, optionally a time column. NaN or None marks a
         missing value. A path is read as the command line reads the file.
     time : str, optional
-        Name of the time column (``--time-column``; default: a first column named ``t`` or
-        ``time``).
+        Name of the time column (``--time-column``; default: a first column named ``t``,
+        ``time``, ``date``, ``datetime``, ``year``, ``month``, ``week`` or ``day``, any case;
+        numbers or ISO 8601 dates and date-times in equal steps).
     seed : int
         Master seed of the random libraries and surrogates (``--seed``, default 1).
     dim : int, optional

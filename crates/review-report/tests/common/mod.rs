@@ -105,6 +105,8 @@ pub fn pair(
         library_sizes: sizes.to_vec(),
         forward,
         reverse,
+        reverse_library_sizes: None,
+        decision: None,
         lag_profile: Some((lags, lag_skill)),
         surrogate_skills: Some(surrogate.clone()),
         seasonal_surrogate_skills: Some(surrogate.iter().map(|v| v + 0.1).collect()),
