@@ -141,15 +141,8 @@ pub fn read_decisions_from(
     let mut checksum: Option<String> = None;
     while csv.next(&mut record)? {
         let row = csv.row(&record);
-        if record.len() != header.len() {
-            return Err(bad(
-                row,
-                format!(
-                    "the row has {} fields but the header has {}",
-                    record.len(),
-                    header.len()
-                ),
-            ));
+        if let Some(message) = width_mismatch(&record, header.len()) {
+            return Err(bad(row, message));
         }
         let field = |k: usize| -> Result<String, InputError> {
             std::str::from_utf8(&record[at[k]])
@@ -257,15 +250,8 @@ pub fn read_feature_rows(path: &Path) -> Result<FeatureRows, InputError> {
     let mut rows = Vec::new();
     while csv.next(&mut record)? {
         let row = csv.row(&record);
-        if record.len() != header.len() {
-            return Err(bad(
-                row,
-                format!(
-                    "the row has {} fields but the header has {}",
-                    record.len(),
-                    header.len()
-                ),
-            ));
+        if let Some(message) = width_mismatch(&record, header.len()) {
+            return Err(bad(row, message));
         }
         let text = |k: usize| String::from_utf8_lossy(&record[k]).into_owned();
         let mut values = Vec::with_capacity(header.len() - 2);
@@ -285,6 +271,18 @@ pub fn read_feature_rows(path: &Path) -> Result<FeatureRows, InputError> {
         rows.push((text(0), text(1), values));
     }
     Ok((header[2..].to_vec(), rows))
+}
+
+
+/// The message for a row whose field count differs from the header's, if it does.
+fn width_mismatch(record: &ByteRecord, header_len: usize) -> Option<String> {
+    (record.len() != header_len).then(|| {
+        format!(
+            "the row has {} fields but the header has {}",
+            record.len(),
+            header_len
+        )
+    })
 }
 
 #[cfg(test)]
