@@ -11,7 +11,7 @@
 //! on position) is never skipped.
 
 use crate::embed::{Manifold, sq_dist};
-use crate::neighbours::{Library, Neighbour, NeighbourIndex};
+use crate::neighbours::{Library, Neighbour, NeighbourIndex, size_rows};
 use std::collections::BinaryHeap;
 
 /// Points per leaf.
@@ -264,8 +264,7 @@ impl NeighbourIndex for KdTree<'_> {
         full: &mut Vec<bool>,
     ) {
         let n = self.manifold.len();
-        rows.resize(n * k, Neighbour { pos: 0, dist: 0.0 });
-        full.resize(n, false);
+        size_rows(n, k, rows, full);
         let lib = (library.len() < n).then_some(library);
         let (mut heap, mut stack, mut out) = (
             BinaryHeap::with_capacity(k + 1),

@@ -143,7 +143,7 @@ fn default_nearest_every<I: NeighbourIndex + ?Sized>(
 
 /// Size the outputs of [`NeighbourIndex::nearest_every`] without clearing them: every `full[q]`
 /// is rewritten, and rows of positions that are not full are never read.
-fn size_rows(n: usize, k: usize, rows: &mut Vec<Neighbour>, full: &mut Vec<bool>) {
+pub(crate) fn size_rows(n: usize, k: usize, rows: &mut Vec<Neighbour>, full: &mut Vec<bool>) {
     rows.resize(n * k, Neighbour { pos: 0, dist: 0.0 });
     full.resize(n, false);
 }

@@ -273,7 +273,6 @@ pub fn read_feature_rows(path: &Path) -> Result<FeatureRows, InputError> {
     Ok((header[2..].to_vec(), rows))
 }
 
-
 /// The message for a row whose field count differs from the header's, if it does.
 fn width_mismatch(record: &ByteRecord, header_len: usize) -> Option<String> {
     (record.len() != header_len).then(|| {
