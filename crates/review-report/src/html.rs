@@ -429,9 +429,15 @@ fn matrix(
                 ),
                 Some(&k) => {
                     let p = &data.pairs[k];
+                    let (fill, ink) = shade(p.p_causal);
+                    let key = p
+                        .answer_key
+                        .as_deref()
+                        .map(|key| format!(", answer key: {}", esc(key)))
+                        .unwrap_or_default();
                     put!(
                         out,
-                        "<td class=\"cell v-{}\" data-cell=\"{i}-{j}\" title=\"does {} drive {}? p = {}, {}\">\
+                        "<td class=\"cell v-{}\" style=\"background:{fill};color:{ink}\" data-cell=\"{i}-{j}\" title=\"does {} drive {}? p = {}, {}{key}\">\
                          <a href=\"#{}\"><span class=\"g\">{}</span><span class=\"p\">{}</span></a></td>",
                         p.verdict.css(),
                         esc(d),
@@ -453,8 +459,23 @@ fn matrix(
          the evidence is ambiguous or unusual &middot; \
          <span class=\"badge v-yes\"><span class=\"g\">&#x25B2;</span> causal</span> the evidence looks like driving &middot; \
          <span class=\"badge v-no\"><span class=\"g\">&#x25CB;</span> non-causal</span> it does not &middot; \
-         &ndash; not assessed</p>\n",
+         &ndash; not assessed. Cells are shaded by p, from white at 0 \
+         <span class=\"ramp\" aria-hidden=\"true\"></span> to deep blue at 1.</p>\n",
     );
+}
+
+/// A matrix cell's fill for probability `p` (white at 0 to the causal blue at 1, so 0.29 and
+/// 0.79 look different whatever their verdict), and a text colour that stays readable on it.
+fn shade(p: f64) -> (String, &'static str) {
+    const FULL: (f64, f64, f64) = (29.0, 78.0, 137.0);
+    let t = if p.is_finite() {
+        p.clamp(0.0, 1.0) * 0.85
+    } else {
+        0.0
+    };
+    let mix = |c: f64| (255.0 + (c - 255.0) * t).round() as u8;
+    let fill = format!("#{:02x}{:02x}{:02x}", mix(FULL.0), mix(FULL.1), mix(FULL.2));
+    (fill, if t > 0.45 { "#fff" } else { "#222630" })
 }
 
 /// The tables and notes that close the summary.
@@ -530,6 +551,7 @@ fn panels(
     opts: &RenderOptions,
 ) -> Result<(), ReportError> {
     let (full, rest) = order.split_at(order.len().min(opts.max_panels));
+    let axis = skill_axis(data, opts);
     for (v, title, lead) in [
         (
             VerdictKind::Review,
@@ -566,7 +588,7 @@ fn panels(
         }
         put!(out, "<p class=\"lead\">{lead}</p>\n");
         for k in members {
-            panel(out, rank[k], &data.pairs[k], v == VerdictKind::Review)?;
+            panel(out, rank[k], &data.pairs[k], v == VerdictKind::Review, axis)?;
         }
         let shown_elsewhere = rest.iter().filter(|&&k| data.pairs[k].verdict == v).count();
         if shown_elsewhere > 0 {
@@ -583,7 +605,68 @@ fn panels(
     Ok(())
 }
 
-fn panel(out: &mut String, anchor: usize, p: &PairView, open: bool) -> Result<(), ReportError> {
+/// The skill axis every figure shares, when the options ask for one.
+fn skill_axis(data: &ReportData, opts: &RenderOptions) -> Option<(f64, f64)> {
+    opts.shared_skill_axis
+        .then(|| plots::shared_skill_axis(&data.pairs))
+}
+
+/// The skill figures of the first `max` pairs in display order, as standalone files.
+pub(crate) fn figures(
+    data: &ReportData,
+    opts: &RenderOptions,
+    max: usize,
+) -> Result<Vec<crate::PairFigure>, ReportError> {
+    validate(data)?;
+    let axis = skill_axis(data, opts);
+    display_order(&data.pairs)
+        .into_iter()
+        .take(max)
+        .enumerate()
+        .filter(|(_, k)| !data.pairs[*k].library_sizes.is_empty())
+        .map(|(pos, k)| {
+            let p = &data.pairs[k];
+            Ok(crate::PairFigure {
+                file_name: format!(
+                    "{:04}-{}-drives-{}.svg",
+                    pos + 1,
+                    file_safe(&p.driver),
+                    file_safe(&p.response)
+                ),
+                svg: plots::skill_curves(p, axis)?,
+            })
+        })
+        .collect()
+}
+
+/// A variable name as part of a file name: letters, digits, `-`, `_` and `.` kept, anything
+/// else `_`, at most 40 characters.
+fn file_safe(name: &str) -> String {
+    let safe: String = name
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.') {
+                c
+            } else {
+                '_'
+            }
+        })
+        .take(40)
+        .collect();
+    if safe.is_empty() || safe.starts_with('.') {
+        format!("_{safe}")
+    } else {
+        safe
+    }
+}
+
+fn panel(
+    out: &mut String,
+    anchor: usize,
+    p: &PairView,
+    open: bool,
+    axis: Option<(f64, f64)>,
+) -> Result<(), ReportError> {
     put!(
         out,
         "<details class=\"pair v-{}\" id=\"{}\"{}>\n<summary>",
@@ -610,6 +693,18 @@ fn panel(out: &mut String, anchor: usize, p: &PairView, open: bool) -> Result<()
         p.verdict.as_str()
     );
     out.push_str("</p>");
+    if let Some(key) = &p.answer_key {
+        let agreement = match p.agrees_with_key() {
+            Some(true) => ", and the verdict agrees with it",
+            Some(false) => ": <strong>the verdict disagrees with it</strong>",
+            None => "",
+        };
+        put!(
+            out,
+            "<p class=\"key-answer\">Answer key (the simulated truth): <strong>{}</strong>{agreement}.</p>",
+            esc(key)
+        );
+    }
     if p.reasons.is_empty() {
         if p.verdict == VerdictKind::Review {
             out.push_str("<p class=\"muted\">No specific reason was recorded.</p>");
@@ -653,7 +748,7 @@ fn panel(out: &mut String, anchor: usize, p: &PairView, open: bool) -> Result<()
     if p.library_sizes.is_empty() {
         out.push_str("<p class=\"muted\">No skill ensemble was supplied for this pair.</p>\n");
     } else {
-        let svg = plots::skill_curves(p)?;
+        let svg = plots::skill_curves(p, axis)?;
         let reps = p.forward.iter().map(Vec::len).max().unwrap_or(0);
         put!(
             out,
@@ -824,5 +919,22 @@ mod tests {
         assert_eq!(fmt_value(Some(123456.0)), "1.23e5");
         assert_eq!(fmt_p(0.5), "0.50");
         assert_eq!(fmt_p(1.0), "1.00");
+    }
+
+    #[test]
+    fn cell_shading_darkens_with_probability_and_keeps_text_readable() {
+        let (a, ink_a) = shade(0.29);
+        let (b, ink_b) = shade(0.79);
+        assert_ne!(a, b, "0.29 and 0.79 must not look alike");
+        assert_eq!(shade(0.0).0, "#ffffff");
+        assert_eq!((ink_a, ink_b), ("#222630", "#fff"));
+        assert_eq!(shade(f64::NAN).0, "#ffffff");
+    }
+
+    #[test]
+    fn figure_file_names_are_safe() {
+        assert_eq!(file_safe("sea temp (°C)"), "sea_temp___C_");
+        assert_eq!(file_safe("../x"), "_.._x");
+        assert_eq!(file_safe(""), "_");
     }
 }

@@ -29,6 +29,7 @@
 //!     surrogate_skills: Some(vec![0.01, 0.05, -0.02]),
 //!     seasonal_surrogate_skills: Some(vec![0.3, 0.35, 0.28]),
 //!     key_features: vec![("skill gain".into(), Some(0.4))],
+//!     answer_key: None,
 //! };
 //! let data = ReportData {
 //!     title: "ccm-triage report — example.csv".into(),
@@ -75,13 +76,47 @@ possible, experiments or interventions before acting on them.";
 pub struct RenderOptions {
     /// Pairs beyond this many (in display order) get a row in a compact table instead of plots.
     pub max_panels: usize,
+    /// Draw every pair's skill figure on one skill axis (the range of all pairs' values), so
+    /// that curve heights compare across figures; otherwise each axis fits its own pair.
+    pub shared_skill_axis: bool,
 }
 
 impl Default for RenderOptions {
     fn default() -> Self {
         // Two figures per pair cost roughly 10 kB of SVG; 200 pairs keep the page light enough to open quickly.
-        Self { max_panels: 200 }
+        Self {
+            max_panels: 200,
+            shared_skill_axis: false,
+        }
     }
+}
+
+impl RenderOptions {
+    /// The default options with the skill axis shared across pairs or not.
+    pub fn with_shared_skill_axis(mut self, shared: bool) -> Self {
+        self.shared_skill_axis = shared;
+        self
+    }
+}
+
+/// One pair's skill figure as a standalone SVG file, for papers and slides.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PairFigure {
+    /// A file name made from the pair's display position and its names (letters, digits,
+    /// `-`, `_` and `.` kept, anything else `_`), ending in `.svg`; unique within a run.
+    pub file_name: String,
+    /// The SVG document.
+    pub svg: String,
+}
+
+/// The skill figure of each of the first `max` pairs in the report's display order (review
+/// first), drawn as in the report with the same `options`. Same data, same bytes.
+pub fn pair_figures(
+    data: &ReportData,
+    options: &RenderOptions,
+    max: usize,
+) -> Result<Vec<PairFigure>, ReportError> {
+    html::figures(data, options, max)
 }
 
 /// Renders the report with default options. Same data, same bytes.

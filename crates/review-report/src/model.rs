@@ -118,6 +118,21 @@ pub struct PairView {
     /// A reviewer's earlier decision on this pair (from a decisions file), shown beside the
     /// model's verdict and used to start the page's decision form.
     pub decision: Option<GivenDecision>,
+    /// The known answer for this pair when the data were simulated with an answer key (the
+    /// demo): `direct`, `indirect`, `confounded` or `independent`, shown beside the verdict.
+    pub answer_key: Option<String>,
+}
+
+impl PairView {
+    /// Whether the verdict agrees with the answer key: `None` without a key or under review.
+    pub fn agrees_with_key(&self) -> Option<bool> {
+        let causal = matches!(self.answer_key.as_deref()?, "direct" | "indirect");
+        match self.verdict {
+            VerdictKind::Review => None,
+            VerdictKind::Causal => Some(causal),
+            VerdictKind::NonCausal => Some(!causal),
+        }
+    }
 }
 
 /// A reviewer's decision on a pair, as exported from an earlier report.

@@ -62,6 +62,7 @@ mod tests {
             surrogate_skills: None,
             seasonal_surrogate_skills: None,
             key_features: vec![],
+            answer_key: None,
         }
     }
 

@@ -37,6 +37,27 @@ fn plot_err<E: std::fmt::Display>(figure: &str) -> impl Fn(E) -> ReportError + '
     }
 }
 
+/// The legend of a figure, inside it at the upper left (the figures leave head room for it).
+fn draw_legend<'a, X, Y>(
+    chart: &mut ChartContext<'a, SVGBackend<'a>, Cartesian2d<X, Y>>,
+    figure: &str,
+) -> Result<(), ReportError>
+where
+    X: Ranged,
+    Y: Ranged,
+{
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperLeft)
+        .margin(6)
+        .legend_area_size(24)
+        .background_style(WHITE.mix(0.88))
+        .border_style(GRID)
+        .label_font(("sans-serif", LABEL_PX * 1.24).into_font().color(&INK))
+        .draw()
+        .map_err(plot_err(figure))
+}
+
 /// Rounds an axis bound outward to a multiple of 0.1 so tick labels stay tidy.
 fn y_bounds(values: impl Iterator<Item = f64>) -> (f64, f64) {
     let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
@@ -118,9 +139,43 @@ fn short(name: &str) -> String {
     }
 }
 
+/// Every skill value a pair's skill figure draws: the forward and opposite spread bands and
+/// the surrogate ranges (for the y-axis, alone or shared across pairs).
+fn drawn_skills(pair: &PairView) -> Vec<f64> {
+    let fwd = spreads(&pair.forward, BAND);
+    let rev = pair.reverse.as_ref().map(|r| spreads(r, BAND));
+    let range = |s: &Vec<f64>| {
+        Some([
+            quantile(s, SURROGATE_BAND.0)?,
+            quantile(s, SURROGATE_BAND.1)?,
+        ])
+    };
+    fwd.iter()
+        .chain(rev.iter().flatten())
+        .flatten()
+        .flat_map(|s| [s.lo, s.hi])
+        .chain(
+            pair.surrogate_skills
+                .iter()
+                .chain(&pair.seasonal_surrogate_skills)
+                .filter_map(range)
+                .flatten(),
+        )
+        .collect()
+}
+
+/// One skill-axis range for every pair's figure, so that heights compare across pairs.
+pub(crate) fn shared_skill_axis(pairs: &[PairView]) -> (f64, f64) {
+    y_bounds(pairs.iter().flat_map(drawn_skills))
+}
+
 /// The skill-against-library-size figure: forward ensemble, the opposite direction (at its
 /// own library sizes when they differ), the surrogate ranges, and a legend inside the figure.
-pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
+/// The skill axis fits this pair's values, or is `axis` when given (shared across pairs).
+pub(crate) fn skill_curves(
+    pair: &PairView,
+    axis: Option<(f64, f64)>,
+) -> Result<String, ReportError> {
     const FIG: &str = "skill against library size";
     let xs: Vec<f64> = pair.library_sizes.iter().map(|&l| l as f64).collect();
     let rev_xs: Vec<f64> = pair
@@ -156,13 +211,7 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
     } else {
         (all_min / 1.15, all_max.max(x_max * 1.25) * 1.12)
     };
-    let all = fwd
-        .iter()
-        .chain(rev.iter().flatten())
-        .flatten()
-        .flat_map(|s| [s.lo, s.hi])
-        .chain(sur.iter().chain(&seasonal).flat_map(|s| [s.0, s.2]));
-    let (y_lo, y_hi) = y_bounds(all);
+    let (y_lo, y_hi) = axis.unwrap_or_else(|| y_bounds(drawn_skills(pair).into_iter()));
     // Head room for the legend inside the figure, above the curves.
     let entries = 1
         + usize::from(rev.is_some())
@@ -311,16 +360,7 @@ pub(crate) fn skill_curves(pair: &PairView) -> Result<String, ReportError> {
         chart
             .draw_series(mids.iter().map(|&p| Circle::new(p, 3, FORWARD.filled())))
             .map_err(plot_err(FIG))?;
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperLeft)
-            .margin(6)
-            .legend_area_size(24)
-            .background_style(WHITE.mix(0.88))
-            .border_style(GRID)
-            .label_font(("sans-serif", LABEL_PX * 1.24).into_font().color(&INK))
-            .draw()
-            .map_err(plot_err(FIG))?;
+        draw_legend(&mut chart, FIG)?;
         root.present().map_err(plot_err(FIG))?;
     }
     Ok(svg)
@@ -339,6 +379,9 @@ pub(crate) fn lag_profile(lags: &[i32], skill: &[f64]) -> Result<String, ReportE
     let l_max = lags.iter().copied().max().unwrap_or(0).max(0) as f64;
     let (x_lo, x_hi) = (l_min - 0.5, l_max + 0.5);
     let (y_lo, y_hi) = y_bounds(pts.iter().map(|p| p.1));
+    // Head room for the two-line legend inside the figure, above the profile.
+    let plot_px = f64::from(LAG_SIZE.1) - 56.0;
+    let y_hi = y_lo + (y_hi - y_lo) / (1.0 - ((2.0 * 19.0 + 16.0) / plot_px).min(0.6));
     let best = best_lag(lags, skill).map(|(l, s)| (l as f64, s));
 
     let mut svg = String::new();
@@ -379,7 +422,9 @@ pub(crate) fn lag_profile(lags: &[i32], skill: &[f64]) -> Result<String, ReportE
                 pts.clone(),
                 FORWARD.stroke_width(2),
             )))
-            .map_err(plot_err(FIG))?;
+            .map_err(plot_err(FIG))?
+            .label("skill at each lag")
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], FORWARD.stroke_width(2)));
         chart
             .draw_series(pts.iter().map(|&p| Circle::new(p, 2, FORWARD.filled())))
             .map_err(plot_err(FIG))?;
@@ -389,8 +434,11 @@ pub(crate) fn lag_profile(lags: &[i32], skill: &[f64]) -> Result<String, ReportE
                     Circle::new(b, 6, FORWARD.stroke_width(2)),
                     Circle::new(b, 3, FORWARD.filled()),
                 ])
-                .map_err(plot_err(FIG))?;
+                .map_err(plot_err(FIG))?
+                .label("best lag")
+                .legend(|(x, y)| Circle::new((x + 9, y), 5, FORWARD.stroke_width(2)));
         }
+        draw_legend(&mut chart, FIG)?;
         root.present().map_err(plot_err(FIG))?;
     }
     Ok(svg)
@@ -438,12 +486,13 @@ mod tests {
             surrogate_skills: Some(vec![0.0, 0.05, 0.1, -0.05]),
             seasonal_surrogate_skills: Some(vec![0.2, 0.25, 0.3]),
             key_features: vec![],
+            answer_key: None,
         }
     }
 
     #[test]
     fn skill_plot_is_svg_with_text_labels() {
-        let svg = skill_curves(&pair()).unwrap();
+        let svg = skill_curves(&pair(), None).unwrap();
         assert!(svg.starts_with("<svg"));
         // Without a font library the SVG backend still emits real <text> elements.
         assert!(svg.contains("<text"));
@@ -455,7 +504,7 @@ mod tests {
     fn reverse_is_drawn_at_its_own_sizes_with_a_legend_inside() {
         let mut p = pair();
         p.reverse_library_sizes = Some(vec![12, 25, 50, 160]);
-        let svg = skill_curves(&p).unwrap();
+        let svg = skill_curves(&p, None).unwrap();
         // The legend names both directions and the surrogates inside the figure.
         assert!(svg.contains("a&lt;b \u{2192} c&amp;d (median)"), "{svg}");
         assert!(svg.contains("c&amp;d \u{2192} a&lt;b (opposite)"));
@@ -492,7 +541,7 @@ mod tests {
         p.forward = vec![vec![f64::NAN, 0.4]];
         p.reverse = Some(vec![vec![f64::NAN]]);
         p.surrogate_skills = Some(vec![f64::NAN]);
-        assert!(skill_curves(&p).unwrap().contains("<svg"));
+        assert!(skill_curves(&p, None).unwrap().contains("<svg"));
     }
 
     #[test]
@@ -503,10 +552,9 @@ mod tests {
         );
         assert_eq!(best_lag(&[-1, 0, 1], &[0.4, 0.4, f64::NAN]), Some((0, 0.4)));
         assert_eq!(best_lag(&[0], &[f64::NAN]), None);
-        assert!(
-            lag_profile(&[-3, -2, -1, 0, 1], &[0.1, 0.3, 0.5, 0.4, 0.2])
-                .unwrap()
-                .contains("<text")
-        );
+        let lag = lag_profile(&[-3, -2, -1, 0, 1], &[0.1, 0.3, 0.5, 0.4, 0.2]).unwrap();
+        assert!(lag.contains("<text"));
+        // Its legend sits inside the figure.
+        assert!(lag.contains("skill at each lag") && lag.contains("best lag"));
     }
 }

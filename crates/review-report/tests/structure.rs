@@ -235,3 +235,50 @@ fn report_of_many_variables_grows_with_the_pairs_not_their_square() {
     let html = render_html(&common::wide(60)).unwrap();
     assert!(html.contains("id=\"matrix\"") && !html.contains("id=\"heat-map\""));
 }
+
+/// The y-axis tick labels of one SVG figure (the skill axis labels are one-decimal numbers).
+fn skill_ticks(svg: &str) -> Vec<String> {
+    svg.split("<text")
+        .filter_map(|t| t.split('>').nth(1))
+        .map(|t| t.trim().trim_end_matches("</text").trim().to_string())
+        .filter(|t| t.contains('.') && t.parse::<f64>().is_ok())
+        .collect()
+}
+
+#[test]
+fn a_shared_skill_axis_gives_every_figure_the_same_scale() {
+    let data = common::small();
+    let own = review_report::pair_figures(&data, &RenderOptions::default(), 100).unwrap();
+    let shared = review_report::pair_figures(
+        &data,
+        &RenderOptions::default().with_shared_skill_axis(true),
+        100,
+    )
+    .unwrap();
+    assert_eq!(own.len(), data.pairs.len());
+    let first = skill_ticks(&shared[0].svg);
+    assert!(!first.is_empty());
+    assert!(shared.iter().all(|f| skill_ticks(&f.svg) == first));
+    // Without it, the axes follow each pair (the test data's pairs differ in height).
+    assert!(
+        own.iter()
+            .any(|f| skill_ticks(&f.svg) != skill_ticks(&own[0].svg))
+    );
+    // One file per pair, named uniquely, review pairs first.
+    let mut names: Vec<&str> = own.iter().map(|f| f.file_name.as_str()).collect();
+    assert!(names[0].starts_with("0001-"));
+    names.sort();
+    names.dedup();
+    assert_eq!(names.len(), data.pairs.len());
+}
+
+#[test]
+fn matrix_cells_are_shaded_by_probability() {
+    let html = render_html(&common::small()).unwrap();
+    let fills: std::collections::BTreeSet<&str> = html
+        .split("style=\"background:")
+        .skip(1)
+        .filter_map(|s| s.split(';').next())
+        .collect();
+    assert!(fills.len() > 3, "{fills:?}");
+}

@@ -119,6 +119,7 @@ pub fn pair(
             ("best lag".to_owned(), Some(peak as f64)),
             ("surrogate exceedance".to_owned(), None),
         ],
+        answer_key: None,
     }
 }
 
