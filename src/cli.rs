@@ -17,12 +17,15 @@ pub struct Cli {
     pub command: Command,
     /// Hide progress bars (they are also hidden when stderr is not a terminal) and the
     /// verdict table printed at the end of scan, label and merge.
-    #[arg(long, global = true)]
+    #[arg(long, global = true, help_heading = GLOBAL)]
     pub quiet: bool,
     /// Worker threads (default: all cores). Results do not depend on it.
-    #[arg(long, global = true, value_name = "N")]
+    #[arg(long, global = true, value_name = "N", help_heading = GLOBAL)]
     pub threads: Option<usize>,
 }
+
+/// The help heading of the options every subcommand takes, so they are listed in one place.
+const GLOBAL: &str = "Options of every command";
 
 /// Subcommands.
 #[derive(Debug, Subcommand)]
@@ -33,13 +36,19 @@ pub enum Command {
     )]
     Scan(ScanArgs),
     /// Label ensembles computed elsewhere, given as a curves.csv table.
-    #[command(after_help = "Example:\n  ccm-triage label curves.csv --out relabelled")]
+    #[command(
+        after_help = "Example (curves.csv from the scan example):\n  ccm-triage label sound-run/curves.csv --out relabelled"
+    )]
     Label(LabelArgs),
     /// Compute curve-only features from a curves.csv table, without labelling.
-    #[command(after_help = "Example:\n  ccm-triage features curves.csv --out feats")]
+    #[command(
+        after_help = "Example (curves.csv from the scan example):\n  ccm-triage features sound-run/curves.csv --out feats"
+    )]
     Features(FeaturesArgs),
     /// Combine the shard directories of `scan --shard I/N` runs into the files of one scan.
-    #[command(after_help = "Example:\n  ccm-triage merge run-shard1 run-shard2 --out run")]
+    #[command(
+        after_help = "Example:\n  ccm-triage scan demo-data/sound.csv --shard 1/2 --out shard1\n  ccm-triage scan demo-data/sound.csv --shard 2/2 --out shard2\n  ccm-triage merge shard1 shard2 --out sound-run"
+    )]
     Merge(MergeArgs),
     /// Simulate labelled coupled systems from a spec file.
     #[command(
@@ -53,13 +62,13 @@ pub enum Command {
     Train(TrainArgs),
     /// Measure a model on simulated systems it was not trained on.
     #[command(
-        after_help = "Example:\n  ccm-triage evaluate --model my-model/model.bin training-sim/specs/holdout.toml"
+        after_help = "Example (my-model from the train example):\n  ccm-triage evaluate --model my-model/model.bin training-sim/specs/holdout.toml"
     )]
     Evaluate(EvaluateArgs),
     /// Print a model file's card (training data, metrics, identity).
     #[command(
         name = "model-card",
-        after_help = "Example:\n  ccm-triage model-card my-model/model.bin"
+        after_help = "Example:\n  ccm-triage model-card models/default-model.bin"
     )]
     ModelCard(ModelCardArgs),
     /// Run the bundled demo scenario and compare the verdicts with its answer key.
@@ -123,6 +132,18 @@ pub struct VerdictArgs {
     /// (decisions.csv): shown beside the model's verdicts in labels.csv and the report.
     #[arg(long, value_name = "FILE")]
     pub decisions: Option<PathBuf>,
+    /// Draw every pair's skill figure (in report.html and plots/) on one skill axis, the range
+    /// of all pairs' values, so that curve heights compare across figures (default: each axis
+    /// fits its own pair).
+    #[arg(long)]
+    pub shared_skill_axis: bool,
+}
+
+impl VerdictArgs {
+    /// How the report and the per-pair figures are drawn.
+    pub fn report_options(&self) -> review_report::RenderOptions {
+        review_report::RenderOptions::default().with_shared_skill_axis(self.shared_skill_axis)
+    }
 }
 
 /// `scan`.

@@ -17,11 +17,10 @@ fn main() -> ExitCode {
     match run(cli) {
         Ok(()) => ExitCode::SUCCESS,
         Err(err) => {
-            let mut message = format!("error: {err}");
-            for cause in err.chain().skip(1) {
-                message.push_str(&format!("\n  caused by: {cause}"));
-            }
-            eprintln!("{message}");
+            eprintln!(
+                "error: {}",
+                triage_pipeline::orchestration::error_text(&err)
+            );
             ExitCode::from(1)
         }
     }

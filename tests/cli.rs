@@ -150,6 +150,34 @@ fn scan_writes_every_contract_file_with_its_header() {
     assert_eq!(run["settings"]["seed"], 3);
     assert_eq!(run["input"]["sha256"].as_str().unwrap().len(), 64);
     assert!(run["model"]["sha256"].is_string());
+    // The run can be traced: the commit built from, the whole command line, when, and the
+    // input as an absolute path.
+    assert!(run["commit"].is_string());
+    let argv = run["invocation"]["command_line"].as_array().unwrap();
+    assert!(argv.iter().any(|a| a == "--surrogates") && argv.iter().any(|a| a == "9"));
+    let started = run["invocation"]["started_at"].as_str().unwrap();
+    assert!(started.len() == 20 && started.ends_with('Z'), "{started}");
+    assert!(std::path::Path::new(run["input"]["absolute_path"].as_str().unwrap()).is_absolute());
+    // Phase surrogates get a period of 0, so the column stays numeric on every row.
+    let surrogates = read_csv(&out.join("surrogates.csv"));
+    assert!(
+        surrogates
+            .iter()
+            .all(|r| r["period"].parse::<f64>().is_ok())
+    );
+    assert!(
+        surrogates
+            .iter()
+            .filter(|r| r["kind"] == "phase")
+            .all(|r| r["period"] == "0")
+    );
+    // One standalone figure per pair, for papers.
+    let plots: Vec<String> = std::fs::read_dir(out.join("plots"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().into_string().unwrap())
+        .collect();
+    assert_eq!(plots.len(), 2, "{plots:?}");
+    assert!(plots.iter().all(|f| f.ends_with(".svg")));
     let html = std::fs::read_to_string(out.join("report.html")).unwrap();
     assert!(html.contains("not proof"));
     // Nothing half-written is left behind.
@@ -253,6 +281,39 @@ fn bad_options_are_rejected_before_any_work() {
         .assert()
         .code(1)
         .stderr(predicate::str::contains("increasing"));
+    // Regression: a wrapped engine error printed its text twice, once as a `caused by` line;
+    // and the message describes the real default (each variable's own cycle).
+    let out = bin()
+        .args(["scan", data.to_str().unwrap(), "--out"])
+        .arg(dir.path().join("o"))
+        .args(["--period", "1"])
+        .assert()
+        .code(1)
+        .get_output()
+        .stderr
+        .clone();
+    let err = String::from_utf8(out).unwrap();
+    assert_eq!(
+        err.matches("must be at least 2 time steps").count(),
+        1,
+        "{err}"
+    );
+    assert!(err.contains("own dominant cycle"), "{err}");
+}
+
+#[test]
+fn the_options_every_command_takes_are_listed_in_one_place() {
+    let out = bin().args(["scan", "--help"]).output().unwrap();
+    let help = String::from_utf8(out.stdout).unwrap();
+    let heading = help.find("Options of every command:").expect("one heading");
+    for flag in ["--quiet", "--threads"] {
+        assert_eq!(
+            help.matches(&format!("{flag} ")).count(),
+            1,
+            "{flag}: {help}"
+        );
+        assert!(help.find(&format!("{flag} ")).unwrap() > heading, "{flag}");
+    }
 }
 
 #[test]
@@ -334,7 +395,9 @@ fn demo_runs_from_any_directory_and_compares_with_its_answer_key() {
                 .and(predicate::str::contains("report:"))
                 .and(predicate::str::is_match(r"(?m)^  driver +response +p +verdict +answer key +agrees with key +reasons$").unwrap()),
         );
-    assert!(dir.path().join("demo/scan/report.html").exists());
+    // The report shows the answer key beside each verdict.
+    let html = std::fs::read_to_string(dir.path().join("demo/scan/report.html")).unwrap();
+    assert_eq!(html.matches("Answer key (the simulated truth)").count(), 42);
     // The demo decides: at most a quarter of its 42 pairs go to review, and the decided ones
     // agree with the simulator's answer key at least nine times in ten.
     let labels = read_csv(&dir.path().join("demo/scan/labels.csv"));
@@ -627,4 +690,56 @@ fn chosen_drivers_and_responses_are_scanned_alone_and_merge_honours_them() {
         .assert()
         .code(1)
         .stderr(predicate::str::contains("`seals`").and(predicate::str::contains("`kelp_cover`")));
+}
+
+#[test]
+fn no_error_message_repeats_a_line() {
+    let dir = temp();
+    let data = dir.path().join("maps.csv");
+    std::fs::write(&data, coupled_logistic_csv(100)).unwrap();
+    let bad = dir.path().join("bad.csv");
+    std::fs::write(&bad, "t,a,b\n1,2,3\n2,x,4\n").unwrap();
+    let d = data.to_str().unwrap();
+    let cases: Vec<Vec<&str>> = vec![
+        vec!["scan", d, "--replicates", "0"],
+        vec!["scan", d, "--period", "1"],
+        vec!["scan", d, "--dim", "0"],
+        vec!["scan", d, "--sizes", "20,5000"],
+        vec!["scan", d, "--max-lag", "60"],
+        vec!["scan", bad.to_str().unwrap()],
+        vec!["scan", "no-such-file.csv"],
+        vec!["label", d],
+    ];
+    for args in cases {
+        let out = bin()
+            .args(&args)
+            .arg("--out")
+            .arg(dir.path().join("o"))
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(1), "{args:?}");
+        let err = String::from_utf8(out.stderr).unwrap();
+        let lines: Vec<&str> = err
+            .lines()
+            .map(str::trim)
+            .filter(|l| !l.is_empty())
+            .collect();
+        let mut seen = std::collections::BTreeSet::new();
+        for l in &lines {
+            // "caused by: X" repeating the text of the line above counts as a repeat too.
+            let text = l
+                .trim_start_matches("caused by: ")
+                .trim_start_matches("error: ");
+            assert!(
+                seen.insert(text.to_string()),
+                "{args:?} repeats {l:?}:\n{err}"
+            );
+            assert!(
+                !lines
+                    .iter()
+                    .any(|o| o != l && o.contains(text) && text.len() > 20),
+                "{args:?}: {l:?} is repeated inside another line:\n{err}"
+            );
+        }
+    }
 }

@@ -1,7 +1,7 @@
 //! Sharded scans and their merge, checkpoint and resume after SIGKILL, and hostile model files.
 //!
 //! The reference of every check here is the tool's own single-process run: sharding and resume
-//! must reproduce it byte for byte (a determinism contract, GUIDE section 4), so no outside
+//! must reproduce it byte for byte (a determinism contract: scripts and clusters rely on any split of the work giving the same files), so no outside
 //! fixture is involved apart from the coupled logistic maps of Sugihara et al. (2012).
 
 mod support;

@@ -4,6 +4,7 @@ use anyhow::Context;
 use review_report::{TableOptions, VerdictKind, verdict_table};
 use series_io::OutputDir;
 
+use super::scan::AnswerKey;
 use crate::cli::{DemoArgs, EngineArgs, ScanArgs, VerdictArgs};
 
 const DATA: &str = include_str!("../../demo-data/sound.csv");
@@ -26,6 +27,7 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
             model: None,
             review_band: verdict_model::verdict::DEFAULT_BAND_TEXT.into(),
             decisions: None,
+            shared_skill_axis: false,
         },
     };
     let first = STORY
@@ -34,16 +36,15 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
     if let Some(line) = first {
         println!("{line}\n");
     }
-    let outcome = super::scan::run_scan(&scan, quiet)?;
     let key = answer_key()?;
+    let outcome = super::scan::run_scan(&scan, quiet, Some(key.clone()))?;
     let mut rows =
         triage_pipeline::table_rows(&outcome.names, &outcome.records, &outcome.judgements);
     let (mut agree, mut wrong, mut review) = (0, 0, 0);
     for row in &mut rows {
         let truth = key
-            .iter()
-            .find(|(kd, kr, _)| *kd == row.driver && *kr == row.response)
-            .map(|(_, _, l)| l.clone())
+            .get(&(row.driver.clone(), row.response.clone()))
+            .cloned()
             .with_context(|| {
                 format!(
                     "answer key has no row for {} -> {}",
@@ -96,17 +97,16 @@ fn default_engine() -> EngineArgs {
     Defaults::parse_from(["defaults"]).engine
 }
 
-fn answer_key() -> anyhow::Result<Vec<(String, String, String)>> {
-    let mut rows = Vec::new();
+fn answer_key() -> anyhow::Result<AnswerKey> {
+    let mut rows = AnswerKey::new();
     for line in KEY.lines().skip(1).filter(|l| !l.trim().is_empty()) {
         let f: Vec<&str> = line.split(',').collect();
         anyhow::ensure!(f.len() >= 3, "answer key row `{line}` is malformed");
         let k = f.len();
-        rows.push((
-            f[k - 3].to_string(),
-            f[k - 2].to_string(),
+        rows.insert(
+            (f[k - 3].to_string(), f[k - 2].to_string()),
             f[k - 1].to_string(),
-        ));
+        );
     }
     Ok(rows)
 }

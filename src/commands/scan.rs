@@ -19,21 +19,29 @@ use triage_pipeline::units::{self, ShardSpec, UnitStore};
 use crate::cli::{FeaturesArgs, LabelArgs, MergeArgs, ScanArgs};
 use crate::progress::Terminal;
 
+/// The known label of each pair, by (driver, response).
+pub type AnswerKey = std::collections::BTreeMap<(String, String), String>;
+
 pub fn scan(args: ScanArgs, quiet: bool) -> anyhow::Result<()> {
     if let Some(text) = &args.shard {
         let shard = ShardSpec::parse(text)?;
         return run_shard(&args, shard, quiet);
     }
-    let finished = run_scan(&args, quiet)?;
+    let finished = run_scan(&args, quiet, None)?;
     print_summary(&finished, &args.out, quiet);
     Ok(())
 }
 
-/// The whole scan, writing every output file into `args.out`.
+/// The whole scan, writing every output file into `args.out`; the report shows `answer_key`
+/// (by driver and response) beside the verdicts when given.
 ///
 /// Each finished unit is checkpointed into `OUT/.checkpoint/`; rerunning the same command
 /// after an interruption skips them. The folder is removed once run.json is written.
-pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Finished> {
+pub fn run_scan(
+    args: &ScanArgs,
+    quiet: bool,
+    answer_key: Option<AnswerKey>,
+) -> anyhow::Result<Finished> {
     let started = Instant::now();
     let observer = Terminal::new(quiet);
     let policy = policy(&args.verdict.review_band)?;
@@ -46,6 +54,7 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Finished> {
         &args.input_choice(),
         &engine,
         ShardSpec::WHOLE,
+        &observer,
     )?;
     show_warnings(&prepared, &args.data);
     // Read before the work, so a wrong file fails in seconds rather than after the cross maps.
@@ -63,9 +72,11 @@ pub fn run_scan(args: &ScanArgs, quiet: bool) -> anyhow::Result<Finished> {
     let store = UnitStore::open(out.path().join(CHECKPOINT_DIR))?;
     let units = compute_units(Some(&store), &prepared, &observer)?;
     let ensembles: Vec<PairEnsemble> = units.into_values().flatten().collect();
-    let finished = run::finish(
+    let mut finished = run::finish(
         &prepared, &ensembles, &policy, &model, "scan", None, started, decisions,
     )?;
+    finished.report_options = args.verdict.report_options();
+    finished.answer_key = answer_key;
     run::write_results(&out, &finished)?;
     std::fs::remove_dir_all(store.path()).with_context(|| {
         format!(
@@ -84,7 +95,14 @@ fn run_shard(args: &ScanArgs, shard: ShardSpec, quiet: bool) -> anyhow::Result<(
     model_source::load(args.verdict.model.as_deref())?;
     let recorded = args.data.display().to_string();
     let engine = EngineSettings::from(&args.engine);
-    let prepared = run::prepare(&args.data, &recorded, &args.input_choice(), &engine, shard)?;
+    let prepared = run::prepare(
+        &args.data,
+        &recorded,
+        &args.input_choice(),
+        &engine,
+        shard,
+        &observer,
+    )?;
     show_warnings(&prepared, &args.data);
     check_budget(&prepared, &recorded, args.over_budget, true, &observer)?;
     let store = UnitStore::open(&args.out)?;
@@ -135,7 +153,14 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         .data
         .clone()
         .unwrap_or_else(|| m.input.path.clone().into());
-    let prepared = run::prepare(&data, &m.input.path, &choice, &engine, ShardSpec::WHOLE)
+    let prepared = run::prepare(
+        &data,
+        &m.input.path,
+        &choice,
+        &engine,
+        ShardSpec::WHOLE,
+        &observer,
+    )
     .with_context(|| {
         format!(
             "cannot reload the input table {} the shards were computed from (pass --data PATH if it moved)",
@@ -175,7 +200,7 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         .iter()
         .map(|d| d.display().to_string())
         .collect();
-    let finished = run::finish(
+    let mut finished = run::finish(
         &prepared,
         &ensembles,
         &policy,
@@ -185,6 +210,7 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         started,
         decisions,
     )?;
+    finished.report_options = args.verdict.report_options();
     run::write_results(&out, &finished)?;
     print_summary(&finished, &args.out, quiet);
     Ok(())
@@ -195,13 +221,14 @@ pub fn label(args: LabelArgs, quiet: bool) -> anyhow::Result<()> {
     let policy = policy(&args.verdict.review_band)?;
     let model = model_source::load(args.verdict.model.as_deref())?;
     let recorded = args.curves.display().to_string();
-    let finished = run::label_curves(
+    let mut finished = run::label_curves(
         &args.curves,
         &recorded,
         &policy,
         &model,
         args.verdict.decisions.as_deref(),
     )?;
+    finished.report_options = args.verdict.report_options();
     let out = OutputDir::create(&args.out)?;
     let _lock = lock_folder(&out, &observer)?;
     let out = out.protect_inputs(

@@ -54,12 +54,13 @@ pub fn logistic_ring_csv(vars: usize, n: usize) -> String {
     out
 }
 
-/// run.json without the fields that legitimately differ between a scan and a merge.
+/// run.json without the fields that legitimately differ between a scan and a merge (the
+/// process that wrote it: its command line, start time and timing).
 pub fn run_record(dir: &Path) -> serde_json::Value {
     let text = std::fs::read_to_string(dir.join("run.json")).expect("run.json");
     let mut v: serde_json::Value = serde_json::from_str(&text).expect("run.json is JSON");
     let obj = v.as_object_mut().expect("object");
-    for key in ["timing", "command", "shards"] {
+    for key in ["timing", "command", "shards", "invocation"] {
         obj.remove(key);
     }
     v

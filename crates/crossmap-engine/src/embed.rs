@@ -4,7 +4,7 @@ use crate::EngineError;
 use crate::simplex::simplex_forecast;
 use rayon::prelude::*;
 
-/// Largest embedding dimension tried when none is fixed (the E = 1..=10).
+/// Largest embedding dimension tried when none is fixed (E = 1..=10).
 pub const DEFAULT_MAX_E: usize = 10;
 
 /// Parsimony tolerance: the smallest E whose simplex skill is within this fraction of the best is

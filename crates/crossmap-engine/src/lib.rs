@@ -172,7 +172,7 @@ pub enum EngineError {
     },
     /// A seasonal period below two steps.
     #[error(
-        "seasonal period {period} must be at least 2 time steps; give the period in time steps or leave it unset for phase-randomised surrogates"
+        "seasonal period {period} must be at least 2 time steps; give the period in time steps, or leave it unset so that each variable's own dominant cycle is used where it counts as a season"
     )]
     PeriodTooShort {
         /// Requested period.

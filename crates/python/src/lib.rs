@@ -31,17 +31,8 @@ create_exception!(
     "Bad input or a refused run; the message is the command line's, caused-by lines included."
 );
 
-/// The message the command line prints after `error: `, caused-by lines included.
-fn message(err: &anyhow::Error) -> String {
-    let mut text = err.to_string();
-    for cause in err.chain().skip(1) {
-        text.push_str(&format!("\n  caused by: {cause}"));
-    }
-    text
-}
-
 fn to_py(err: anyhow::Error) -> PyErr {
-    TriageError::new_err(message(&err))
+    TriageError::new_err(triage_pipeline::orchestration::error_text(&err))
 }
 
 /// Progress and cancellation shared between the worker and the polling thread.
@@ -139,9 +130,9 @@ fn run_long<T: Send>(
         }
         match result {
             Ok(v) => Ok(v),
-            Err(e) if e.is::<Cancelled>() => {
-                Err(pyo3::exceptions::PyKeyboardInterrupt::new_err(message(&e)))
-            }
+            Err(e) if e.is::<Cancelled>() => Err(pyo3::exceptions::PyKeyboardInterrupt::new_err(
+                triage_pipeline::orchestration::error_text(&e),
+            )),
             Err(e) => Err(to_py(e)),
         }
     })
@@ -304,6 +295,7 @@ fn scan(
                 &choice,
                 &engine,
                 ShardSpec::WHOLE,
+                obs,
             )?,
             (Some(bytes), None) => {
                 engine.analysis_settings()?;
@@ -312,7 +304,15 @@ fn scan(
                     &source,
                     &choice.table.read_options()?,
                 )?;
-                run::prepare_table(table, &source, &source, &choice, &engine, ShardSpec::WHOLE)?
+                run::prepare_table(
+                    table,
+                    &source,
+                    &source,
+                    &choice,
+                    &engine,
+                    ShardSpec::WHOLE,
+                    obs,
+                )?
             }
             (None, None) => anyhow::bail!("give a table or a path"),
         };

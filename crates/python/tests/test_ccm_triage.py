@@ -121,13 +121,22 @@ def test_path_input_and_write_give_the_command_lines_files(tmp_path, cli):
     names = sorted(p.name for p in out_cli.iterdir())
     assert names == sorted(p.name for p in out_py.iterdir())
     assert "report.html" in names and "run.json" in names
+    assert "plots" in names
     for name in names:
         if name == "run.json":
+            continue
+        if name == "plots":
+            figures = sorted(p.name for p in (out_cli / name).iterdir())
+            assert figures == sorted(p.name for p in (out_py / name).iterdir())
+            for f in figures:
+                assert (out_py / name / f).read_bytes() == (out_cli / name / f).read_bytes(), f
             continue
         assert (out_py / name).read_bytes() == (out_cli / name).read_bytes(), name
     a, b = (json.loads((o / "run.json").read_text()) for o in (out_cli, out_py))
     for r in (a, b):
+        # The process that wrote each file: its command line, start time and timing.
         r.pop("timing")
+        r.pop("invocation")
     assert a == b
     # The round trip: the files written read back as the result's tables.
     for t in TABLES:

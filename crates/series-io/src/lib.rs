@@ -50,7 +50,7 @@ pub use decisions::{
     read_decisions_from, read_feature_rows,
 };
 pub use error::{InputError, OutputError};
-pub use lock::{DirLock, LOCK_FILE, LockHolder};
+pub use lock::{DirLock, LOCK_FILE, LockHolder, utc_timestamp, utc_timestamp_at};
 pub use output::{
     CsvTable, Export, JsonDocument, OutputDir, TextDocument, format_f64, write_csv_rows,
 };

@@ -149,15 +149,34 @@ fn host_name() -> String {
 
 /// The current time as `YYYY-MM-DD HH:MM:SS UTC`.
 fn utc_now() -> String {
-    utc_date(
-        SystemTime::now()
-            .duration_since(UNIX_EPOCH)
-            .map_or(0, |d| d.as_secs()),
-    )
+    utc_date(now_secs())
+}
+
+/// The current time as an ISO 8601 UTC timestamp, `YYYY-MM-DDTHH:MM:SSZ` (for run records).
+pub fn utc_timestamp() -> String {
+    utc_timestamp_at(now_secs())
+}
+
+/// Seconds since 1970-01-01 00:00:00 UTC as an ISO 8601 timestamp, `YYYY-MM-DDTHH:MM:SSZ`.
+pub fn utc_timestamp_at(secs: u64) -> String {
+    let (date, time) = civil(secs);
+    format!("{date}T{time}Z")
+}
+
+fn now_secs() -> u64 {
+    SystemTime::now()
+        .duration_since(UNIX_EPOCH)
+        .map_or(0, |d| d.as_secs())
 }
 
 /// Seconds since 1970-01-01 00:00:00 UTC as `YYYY-MM-DD HH:MM:SS UTC`.
 fn utc_date(secs: u64) -> String {
+    let (date, time) = civil(secs);
+    format!("{date} {time} UTC")
+}
+
+/// Seconds since 1970-01-01 00:00:00 UTC as the date `YYYY-MM-DD` and the time `HH:MM:SS`.
+fn civil(secs: u64) -> (String, String) {
     let (days, rem) = (secs / 86_400, secs % 86_400);
     // Days since 1970-01-01 to a civil date (the proleptic Gregorian algorithm of
     // Howard Hinnant's "chrono-compatible low-level date algorithms", from memory).
@@ -170,11 +189,9 @@ fn utc_date(secs: u64) -> String {
     let day = doy - (153 * mp + 2) / 5 + 1;
     let month = if mp < 10 { mp + 3 } else { mp - 9 };
     let year = yoe + era * 400 + i64::from(month <= 2);
-    format!(
-        "{year:04}-{month:02}-{day:02} {:02}:{:02}:{:02} UTC",
-        rem / 3600,
-        rem % 3600 / 60,
-        rem % 60
+    (
+        format!("{year:04}-{month:02}-{day:02}"),
+        format!("{:02}:{:02}:{:02}", rem / 3600, rem % 3600 / 60, rem % 60),
     )
 }
 
@@ -229,5 +246,6 @@ mod tests {
         assert_eq!(utc_date(0), "1970-01-01 00:00:00 UTC");
         assert_eq!(utc_date(1_796_234_709), "2026-12-02 18:05:09 UTC");
         assert_eq!(utc_date(951_868_799), "2000-02-29 23:59:59 UTC");
+        assert_eq!(utc_timestamp_at(951_868_799), "2000-02-29T23:59:59Z");
     }
 }

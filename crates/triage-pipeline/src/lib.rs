@@ -94,8 +94,8 @@ pub enum PipelineError {
         source: crossmap_engine::EngineError,
     },
     /// The cross-map parameters do not fit the data.
-    #[error("{0}")]
-    Params(#[source] crossmap_engine::EngineError),
+    #[error(transparent)]
+    Params(crossmap_engine::EngineError),
     /// The cross-map parameters do not fit one variable's data; the message names it.
     #[error("variable `{variable}`: {reason}")]
     ParamsOf {
@@ -164,6 +164,15 @@ pub fn embed_all(
     series: &SeriesSet,
     settings: &EmbeddingSettings,
 ) -> Result<Vec<Embedding>, PipelineError> {
+    embed_all_with(series, settings, &|_| {})
+}
+
+/// [`embed_all`], calling `done(k)` after the k-th variable is embedded (for progress).
+pub fn embed_all_with(
+    series: &SeriesSet,
+    settings: &EmbeddingSettings,
+    done: &dyn Fn(usize),
+) -> Result<Vec<Embedding>, PipelineError> {
     if series.names.len() < 2 {
         return Err(PipelineError::TooFewSeries(series.names.len()));
     }
@@ -171,13 +180,16 @@ pub fn embed_all(
         .columns
         .iter()
         .zip(&series.names)
-        .map(|(column, name)| {
-            crossmap_engine::choose_embedding(column, settings).map_err(|source| {
+        .enumerate()
+        .map(|(k, (column, name))| {
+            let e = crossmap_engine::choose_embedding(column, settings).map_err(|source| {
                 PipelineError::Embedding {
                     variable: name.clone(),
                     source,
                 }
-            })
+            });
+            done(k + 1);
+            e
         })
         .collect()
 }

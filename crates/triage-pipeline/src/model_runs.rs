@@ -180,7 +180,14 @@ pub fn train_spec(
         suite_name: suite.as_ref().map(|s| s.1.clone()).unwrap_or_default(),
         ..FitConfig::default()
     };
-    let bundle = verdict_model::fit_with_suite(&set, suite.as_ref().map(|s| &s.0), &cfg)?;
+    let heads = 1 + usize::from(!cfg.curve_only_names.is_empty());
+    observer.begin("fitting", (heads * cfg.candidates.len()) as u64);
+    let bundle =
+        verdict_model::fit_with_progress(&set, suite.as_ref().map(|s| &s.0), &cfg, &|done, _| {
+            observer.advance(done as u64)
+        });
+    observer.end();
+    let bundle = bundle?;
     if observer.cancelled() {
         return Err(Cancelled.into());
     }

@@ -34,6 +34,8 @@ use crate::{
 
 /// Version written into run.json and manifests as the tool's version.
 pub const TOOL_VERSION: &str = env!("CARGO_PKG_VERSION");
+/// The git commit the tool was built from ("unknown" when built outside a git checkout).
+pub const TOOL_COMMIT: &str = env!("CCM_TRIAGE_COMMIT");
 
 /// Name of the checkpoint folder inside a scan's output directory.
 pub const CHECKPOINT_DIR: &str = ".checkpoint";
@@ -117,12 +119,58 @@ impl Prepared {
     /// treated as equal, filled gaps), each as one line naming `source`, for the caller to
     /// show: the library never prints.
     pub fn warnings(&self, source: &str) -> Vec<String> {
-        self.table
+        let mut lines: Vec<String> = self
+            .table
             .warnings
             .iter()
             .map(|w| format!("warning: {source}: {w}"))
-            .collect()
+            .collect();
+        let names = &self.series.names;
+        let missing: Vec<String> = names
+            .iter()
+            .zip(&self.table.missing)
+            .filter(|(_, m)| **m > 0)
+            .map(|(n, m)| format!("{n} {m}"))
+            .collect();
+        if !missing.is_empty() {
+            lines.push(format!(
+                "note: {source}: missing cells in {} of {} series ({}); delay vectors and targets \
+                 touching them are left out (counts per variable in run.json and the report)",
+                missing.len(),
+                names.len(),
+                list_some(&missing, 6)
+            ));
+        }
+        let short: Vec<String> = names
+            .iter()
+            .zip(&self.params.plans)
+            .filter(|(_, p)| p.usable < SHORT_SERIES)
+            .map(|(n, p)| format!("{n} {}", p.usable))
+            .collect();
+        if !short.is_empty() {
+            lines.push(format!(
+                "note: {source}: short series, fewer than {SHORT_SERIES} usable delay vectors ({}): \
+                 skill converges slowly at these lengths, so weak links may leave no footprint \
+                 and more pairs go to review",
+                list_some(&short, 6)
+            ));
+        }
+        lines
     }
+}
+
+/// Below this many usable delay vectors a series gets a note: cross-map skill needs a few
+/// hundred points to converge clearly (common practice; Sugihara et al. 2012 show convergence
+/// over libraries of hundreds of points).
+pub const SHORT_SERIES: usize = 100;
+
+/// The first `max` items joined by ", ", then "and N more".
+fn list_some(items: &[String], max: usize) -> String {
+    let mut text = items[..items.len().min(max)].join(", ");
+    if items.len() > max {
+        text.push_str(&format!(" and {} more", items.len() - max));
+    }
+    text
 }
 
 /// The options a run reads its input with and scans it by: how the table is read and which
@@ -142,6 +190,7 @@ pub fn prepare(
     choice: &InputChoice,
     engine: &EngineSettings,
     shard: ShardSpec,
+    observer: &dyn Observer,
 ) -> anyhow::Result<Prepared> {
     // Checked before the table is read, as the options come first.
     engine.analysis_settings()?;
@@ -153,6 +202,7 @@ pub fn prepare(
         choice,
         engine,
         shard,
+        observer,
     )
 }
 
@@ -167,6 +217,7 @@ pub fn prepare_table(
     choice: &InputChoice,
     engine: &EngineSettings,
     shard: ShardSpec,
+    observer: &dyn Observer,
 ) -> anyhow::Result<Prepared> {
     let settings = engine.analysis_settings()?;
     let series = SeriesSet {
@@ -183,7 +234,12 @@ pub fn prepare_table(
         work.retain(|u| m.contains(u));
     }
     let context = || format!("cannot analyse {source}");
-    let embeddings = crate::embed_all(&series, &settings.embedding).with_context(context)?;
+    observer.begin("embedding", series.names.len() as u64);
+    let embeddings = crate::embed_all_with(&series, &settings.embedding, &|k| {
+        observer.advance(k as u64)
+    });
+    observer.end();
+    let embeddings = embeddings.with_context(context)?;
     let params =
         crate::validate_params(&series, &embeddings, &settings.crossmap).with_context(context)?;
     let manifest = StoreManifest {
@@ -390,6 +446,20 @@ pub fn check_budget(
     )
 }
 
+/// The one-paragraph message the command line prints after `error: ` (and the Python
+/// module raises): the error, then each cause on a `caused by:` line. A cause whose text the
+/// message already holds (an error that displays its source) is not repeated.
+pub fn error_text(err: &anyhow::Error) -> String {
+    let mut text = err.to_string();
+    for cause in err.chain().skip(1) {
+        let cause = cause.to_string();
+        if !text.contains(&cause) {
+            text.push_str(&format!("\n  caused by: {cause}"));
+        }
+    }
+    text
+}
+
 /// A finished labelling run: everything its result files hold.
 #[derive(Debug, Clone)]
 pub struct Finished {
@@ -407,6 +477,11 @@ pub struct Finished {
     pub run: serde_json::Value,
     /// Reviewer decisions shown beside the verdicts (labels.csv, the report).
     pub decisions: Option<DecisionFile>,
+    /// How the report and the per-pair figures are drawn.
+    pub report_options: review_report::RenderOptions,
+    /// The known label of each pair by (driver, response), when the data come with an answer
+    /// key (the demo): shown beside the verdicts in the report.
+    pub answer_key: Option<BTreeMap<(String, String), String>>,
 }
 
 impl Finished {
@@ -437,7 +512,11 @@ impl Finished {
         if !self.embeddings.is_empty() {
             files.push(Box::new(tables::embedding(names, &self.embeddings)));
             files.push(Box::new(tables::lags(names, &self.records)));
-            files.push(Box::new(tables::surrogates(names, &self.records)));
+            files.push(Box::new(tables::surrogates(
+                names,
+                &self.records,
+                &self.facts.cycles,
+            )));
         }
         files.push(Box::new(tables::features(names, &self.records)));
         let labels = tables::labels(names, &self.records, &self.judgements);
@@ -450,6 +529,25 @@ impl Finished {
 
     /// The review report (report.html).
     pub fn report_html(&self) -> anyhow::Result<String> {
+        Ok(review_report::render_html_with(
+            &self.view(),
+            &self.report_options,
+        )?)
+    }
+
+    /// The skill figure of each pair as a standalone SVG (`plots/`), in the report's order,
+    /// at most [`MAX_PLOT_FILES`].
+    pub fn figures(&self) -> anyhow::Result<Vec<review_report::PairFigure>> {
+        Ok(review_report::pair_figures(
+            &self.view(),
+            &self.report_options,
+            MAX_PLOT_FILES,
+        )?)
+    }
+
+    /// The report's view of the run: the pairs with their evidence, reviewer decisions and
+    /// answer key.
+    fn view(&self) -> review_report::ReportData {
         let mut view = report_view(
             &self.facts,
             &self.names,
@@ -471,7 +569,14 @@ impl Finished {
                 });
             }
         }
-        Ok(review_report::render_html(&view)?)
+        if let Some(key) = &self.answer_key {
+            for pair in &mut view.pairs {
+                pair.answer_key = key
+                    .get(&(pair.driver.clone(), pair.response.clone()))
+                    .cloned();
+            }
+        }
+        view
     }
 
     /// Rows of the terminal verdict table, one per pair (the table sorts them).
@@ -504,9 +609,12 @@ pub fn finish(
     let mut run = serde_json::json!({
         "tool": "ccm-triage",
         "version": TOOL_VERSION,
+        "commit": TOOL_COMMIT,
         "command": command,
+        "invocation": invocation_record(started),
         "input": {
             "path": p.manifest.input.path,
+            "absolute_path": absolute(Path::new(&p.manifest.input.path)),
             "sha256": table.sha256,
             "rows": table.n_rows(),
             "time_column": table.time_column,
@@ -555,6 +663,8 @@ pub fn finish(
         facts,
         run,
         decisions,
+        report_options: Default::default(),
+        answer_key: None,
     })
 }
 
@@ -625,8 +735,15 @@ fn label_records(
     let run = serde_json::json!({
         "tool": "ccm-triage",
         "version": TOOL_VERSION,
+        "commit": TOOL_COMMIT,
         "command": "label",
-        "input": {"path": recorded_path, "sha256": sha},
+        "invocation": invocation_record(started),
+        "input": {
+            "path": recorded_path,
+            // Ensembles held in memory (the Python module) have no file to point at.
+            "absolute_path": Path::new(recorded_path).exists().then(|| absolute(Path::new(recorded_path))),
+            "sha256": sha,
+        },
         "model": model_record(model),
         "review_band": [policy.band.0, policy.band.1],
         "feature_schema": {"version": ensemble_features::SCHEMA_VERSION, "hash": ensemble_features::schema_hash()},
@@ -657,6 +774,8 @@ fn label_records(
         facts,
         run,
         decisions: None,
+        report_options: Default::default(),
+        answer_key: None,
     })
 }
 
@@ -713,10 +832,41 @@ pub fn write_results(out: &OutputDir, finished: &Finished) -> anyhow::Result<()>
         name: "report.html".into(),
         text: finished.report_html()?,
     })?;
+    write_figures(out, &finished.figures()?)?;
     out.export(&JsonDocument {
         name: "run.json".into(),
         value: &finished.run,
     })?;
+    Ok(())
+}
+
+/// Most per-pair figure files one run writes into `plots/` (review pairs first): beyond a few
+/// hundred pairs the report's compact table and the CSV files serve better than thousands of
+/// files.
+pub const MAX_PLOT_FILES: usize = 500;
+
+/// Name of the folder of per-pair figures inside a run's output directory.
+pub const PLOTS_DIR: &str = "plots";
+
+/// Write the per-pair figures into `plots/`, each atomically, and remove the figures an
+/// earlier run left there that this run did not write (so the folder matches run.json).
+fn write_figures(out: &OutputDir, figures: &[review_report::PairFigure]) -> anyhow::Result<()> {
+    let dir = out.subdir(PLOTS_DIR)?;
+    for f in figures {
+        dir.write_bytes(&f.file_name, f.svg.as_bytes())?;
+    }
+    let written: std::collections::BTreeSet<&str> =
+        figures.iter().map(|f| f.file_name.as_str()).collect();
+    let entries = std::fs::read_dir(dir.path())
+        .with_context(|| format!("cannot list {}", dir.path().display()))?;
+    for entry in entries.flatten() {
+        let name = entry.file_name().to_string_lossy().into_owned();
+        if name.ends_with(".svg") && !written.contains(name.as_str()) {
+            std::fs::remove_file(entry.path()).with_context(|| {
+                format!("cannot remove the old figure {}", entry.path().display())
+            })?;
+        }
+    }
     Ok(())
 }
 
@@ -767,6 +917,31 @@ pub fn time_axis_record(table: &SeriesTable) -> serde_json::Value {
                 "step": a.step, "uneven_steps": a.uneven_steps, "filled_rows": a.filled_rows,
             })
         })
+}
+
+/// How this process was started, for run.json: the full command line (the arguments as the
+/// shell passed them), the working directory, and the start time as an ISO 8601 UTC timestamp.
+pub fn invocation_record(started: Instant) -> serde_json::Value {
+    let argv: Vec<String> = std::env::args_os()
+        .map(|a| a.to_string_lossy().into_owned())
+        .collect();
+    let cwd = std::env::current_dir()
+        .map(|d| d.display().to_string())
+        .unwrap_or_default();
+    let started_at = std::time::SystemTime::now()
+        .checked_sub(started.elapsed())
+        .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
+        .map(|d| series_io::utc_timestamp_at(d.as_secs()))
+        .unwrap_or_else(series_io::utc_timestamp);
+    serde_json::json!({"command_line": argv, "working_directory": cwd, "started_at": started_at})
+}
+
+/// `path` made absolute against the working directory (symbolic links kept), as text.
+fn absolute(path: &Path) -> String {
+    std::path::absolute(path)
+        .unwrap_or_else(|_| path.to_path_buf())
+        .display()
+        .to_string()
 }
 
 /// The paths given, without the absent ones.
@@ -896,5 +1071,71 @@ mod tests {
         let (_, c) = recorded_options(&old).unwrap();
         assert_eq!(c.table, TableSettings::with_time_column(Some("t")));
         assert!(c.select.is_all());
+    }
+
+    #[test]
+    fn a_cause_already_in_the_message_is_printed_once() {
+        #[derive(Debug, thiserror::Error)]
+        #[error("outer: {0}")]
+        struct Shows(#[source] std::io::Error);
+        let inner = std::io::Error::other("disk full");
+        let err = anyhow::Error::new(Shows(inner)).context("cannot write out/run.json");
+        let text = error_text(&err);
+        assert_eq!(text.matches("disk full").count(), 1, "{text}");
+        assert!(text.starts_with("cannot write out/run.json\n  caused by: outer: disk full"));
+        let plain = anyhow::anyhow!("no such file").context("cannot read d.csv");
+        assert_eq!(
+            error_text(&plain),
+            "cannot read d.csv\n  caused by: no such file"
+        );
+    }
+
+    #[test]
+    fn missing_cells_and_short_series_get_a_terminal_note() {
+        let n = 80;
+        let x: Vec<f64> = (0..n).map(|i| (i as f64 * 0.7).sin()).collect();
+        let mut y: Vec<f64> = (0..n).map(|i| (i as f64 * 0.3).cos()).collect();
+        y[5] = f64::NAN;
+        let csv: String = std::iter::once("t,x,y".to_string())
+            .chain((0..n).map(|i| {
+                let yv = if y[i].is_nan() {
+                    String::new()
+                } else {
+                    y[i].to_string()
+                };
+                format!("{i},{},{yv}", x[i])
+            }))
+            .collect::<Vec<_>>()
+            .join("\n");
+        let table =
+            series_io::read_series_from(csv.as_bytes(), "d.csv", &Default::default()).unwrap();
+        let engine = EngineSettings {
+            dim: Some(2),
+            delay: Some(1),
+            ..EngineSettings::default()
+        };
+        let p = prepare_table(
+            table,
+            "d.csv",
+            "d.csv",
+            &InputChoice::default(),
+            &engine,
+            ShardSpec::WHOLE,
+            &Silent,
+        )
+        .unwrap();
+        let lines = p.warnings("d.csv");
+        assert!(
+            lines
+                .iter()
+                .any(|l| l.starts_with("note: d.csv: missing cells in 1 of 2 series (y 1)")),
+            "{lines:?}"
+        );
+        assert!(
+            lines
+                .iter()
+                .any(|l| l.contains("short series") && l.contains("x 7")),
+            "{lines:?}"
+        );
     }
 }

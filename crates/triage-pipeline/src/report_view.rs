@@ -6,18 +6,53 @@ use verdict_model::Verdict;
 
 use crate::{Judgement, PairRecord};
 
-/// Features shown beside each pair's plots, in this order.
-pub const KEY_FEATURES: [&str; 9] = [
-    "skill_final_mean",
-    "skill_gain",
-    "fit_asymptote",
-    "rev_skill_final_mean",
-    "lag_best",
-    "surrogate_percentile",
-    "simplex_response",
-    "correlation",
-    "spread_sd_large",
+/// Features shown beside each pair's plots, in this order: the feature's id and what the
+/// report calls it (plain language, with its unit). Skill is Pearson's rho between estimated
+/// and observed values.
+pub const KEY_FEATURES: [(&str, &str); 9] = [
+    (
+        "skill_final_mean",
+        "skill at the largest library (rho, mean of replicates)",
+    ),
+    (
+        "skill_gain",
+        "rise in skill from the smallest to the largest library (rho)",
+    ),
+    (
+        "fit_asymptote",
+        "level the fitted skill curve approaches (rho)",
+    ),
+    (
+        "rev_skill_final_mean",
+        "skill of the opposite direction at its largest library (rho)",
+    ),
+    (
+        "lag_best",
+        "cross-map lag of the best skill (time steps; a driver is expected at 0 or below)",
+    ),
+    (
+        "surrogate_percentile",
+        "share of phase-randomised surrogate drivers the skill beats (0 to 1)",
+    ),
+    (
+        "simplex_response",
+        "how well the response forecasts itself, by simplex projection (rho)",
+    ),
+    (
+        "correlation",
+        "plain correlation of the two series (Pearson r)",
+    ),
+    (
+        "spread_sd_mid",
+        "spread of the replicates' skills at the middle library size (standard deviation of rho)",
+    ),
 ];
+
+/// A spread of exactly zero says only that every replicate used the same library (the whole
+/// manifold), not that the skill is certain, so such values are left out of the report.
+fn shown(id: &str, value: Option<f64>) -> bool {
+    !(id.starts_with("spread_") && value == Some(0.0))
+}
 
 /// What the report says about the run itself.
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -83,12 +118,29 @@ fn reasons_view(j: &Judgement) -> Vec<(String, String)> {
             ),
         ));
     }
-    out.extend(
-        j.reasons
-            .iter()
-            .map(|r| (r.code().to_string(), r.explain().to_string())),
-    );
+    out.extend(j.reasons.iter().map(|r| {
+        let text = match r {
+            verdict_model::Reason::Uncertain if j.p_causal.is_finite() => {
+                uncertain_words(j.p_causal)
+            }
+            _ => r.explain().to_string(),
+        };
+        (r.code().to_string(), text)
+    }));
     out
+}
+
+/// What a probability inside the review band says, in words that match its value: near 0.5
+/// it is an even chance, further out it leans one way without deciding.
+fn uncertain_words(p: f64) -> String {
+    let lean = if (p - 0.5).abs() < 0.05 {
+        "is close to an even chance: the evidence does not lean either way"
+    } else if p > 0.5 {
+        "leans towards causal, but not far enough to decide"
+    } else {
+        "leans towards non-causal, but not far enough to decide"
+    };
+    format!("p = {p:.2} lies inside the review band and {lean}.")
 }
 
 /// The report's word for a verdict.
@@ -132,7 +184,7 @@ pub fn report_view(
 ) -> ReportData {
     let index: Vec<Option<usize>> = KEY_FEATURES
         .iter()
-        .map(|n| ensemble_features::index_of(n))
+        .map(|(id, _)| ensemble_features::index_of(id))
         .collect();
     let pairs = records
         .iter()
@@ -164,9 +216,12 @@ pub fn report_view(
             key_features: KEY_FEATURES
                 .iter()
                 .zip(&index)
-                .map(|(name, k)| (name.to_string(), k.and_then(|k| rec.features[k])))
+                .map(|((id, label), k)| (*id, label, k.and_then(|k| rec.features[k])))
+                .filter(|(id, _, v)| shown(id, *v))
+                .map(|(_, label, v)| (label.to_string(), v))
                 .collect(),
             decision: None,
+            answer_key: None,
         })
         .collect();
     ReportData {
@@ -192,5 +247,35 @@ pub fn report_view(
             .collect(),
         pairs,
         notes: facts.notes.clone(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_spread_of_exactly_zero_is_left_out_but_other_zeros_are_kept() {
+        assert!(!shown("spread_sd_mid", Some(0.0)));
+        assert!(shown("spread_sd_mid", Some(0.02)));
+        assert!(shown("lag_best", Some(0.0)));
+        assert!(shown("skill_gain", None));
+    }
+
+    #[test]
+    fn the_words_for_a_review_probability_match_its_value() {
+        // Regression: p = 0.74 under review was described as close to an even chance.
+        assert!(uncertain_words(0.52).contains("even chance"));
+        assert!(uncertain_words(0.66).contains("leans towards causal"));
+        assert!(uncertain_words(0.34).contains("leans towards non-causal"));
+        assert!(!uncertain_words(0.66).contains("even"));
+    }
+
+    #[test]
+    fn every_key_feature_is_in_the_schema() {
+        for (id, label) in KEY_FEATURES {
+            assert!(ensemble_features::index_of(id).is_some(), "{id}");
+            assert!(!label.contains('_'), "{label} should be plain language");
+        }
     }
 }

@@ -1,6 +1,6 @@
 //! The result tables of a labelling run, as exportable files (formats in the README).
 
-use crate::{Judgement, PairRecord};
+use crate::{CycleFact, Judgement, PairRecord};
 use crossmap_engine::Embedding;
 use series_io::{CsvTable, Export, format_f64, write_csv_rows};
 
@@ -117,8 +117,11 @@ pub fn lags(names: &[String], records: &[PairRecord]) -> CsvTable {
 
 /// `surrogates.csv`: the skill of each surrogate driver at the largest library size, of two
 /// kinds: `phase` (phase-randomised) and `seasonal` (the driver's cycle of `period` samples
-/// kept, anomalies phase-randomised).
-pub fn surrogates(names: &[String], records: &[PairRecord]) -> CsvTable {
+/// kept, anomalies phase-randomised). `period` is 0 where no cycle was kept: on phase rows, and
+/// on seasonal rows of a driver whose cycle is no season (`cycles`, by variable), whose
+/// seasonal surrogates are then phase-randomised too. A number on every row keeps the column
+/// numeric and every row in a group-by.
+pub fn surrogates(names: &[String], records: &[PairRecord], cycles: &[CycleFact]) -> CsvTable {
     let mut rows = Vec::new();
     for rec in records {
         let (d, r) = (&names[rec.driver], &names[rec.response]);
@@ -129,14 +132,16 @@ pub fn surrogates(names: &[String], records: &[PairRecord]) -> CsvTable {
             }
         };
         if let Some(skills) = &rec.evidence.surrogate_skills {
-            push("phase", String::new(), skills);
+            push("phase", "0".into(), skills);
         }
         if let Some(seasonal) = &rec.evidence.seasonal {
-            push(
-                "seasonal",
-                format!("{:.3}", seasonal.driver.period),
-                &seasonal.skills,
-            );
+            let kept = cycles.get(rec.driver).is_some_and(|c| c.season);
+            let period = if kept {
+                format!("{:.3}", seasonal.driver.period)
+            } else {
+                "0".into()
+            };
+            push("seasonal", period, &seasonal.skills);
         }
     }
     table(

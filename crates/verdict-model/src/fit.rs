@@ -577,10 +577,10 @@ fn scored(
 fn fit_head(
     head: Head,
     columns: Vec<usize>,
-    set: &TrainingSet,
-    suite: Option<&TrainingSet>,
+    (set, suite): (&TrainingSet, Option<&TrainingSet>),
     cfg: &FitConfig,
     seed: u64,
+    step: &dyn Fn(),
 ) -> Result<FittedHead, ModelError> {
     let complete: Vec<usize> = (0..set.rows.len())
         .filter(|&i| columns.iter().all(|&c| set.rows[i][c].is_some()))
@@ -731,6 +731,7 @@ fn fit_head(
             suite_log_loss: suite_ll,
             suite_roc_auc: suite_auc,
         });
+        step();
         // The suite decides when there is one; leave-one-family-out otherwise.
         let key = suite_ll.unwrap_or(ll);
         if best.as_ref().is_none_or(|b| key < b.0) {
@@ -865,7 +866,28 @@ pub fn fit_with_suite(
     suite: Option<&TrainingSet>,
     cfg: &FitConfig,
 ) -> Result<ModelBundle, ModelError> {
+    fit_with_progress(set, suite, cfg, &|_, _| {})
+}
+
+/// As [`fit_with_suite`], calling `step(done, total)` each time a candidate of a head has been
+/// scored (every fold and the suite), for a progress display; `total` is the number of heads
+/// times the number of candidates.
+pub fn fit_with_progress(
+    set: &TrainingSet,
+    suite: Option<&TrainingSet>,
+    cfg: &FitConfig,
+    step: &(dyn Fn(usize, usize) + Sync),
+) -> Result<ModelBundle, ModelError> {
     validate(set, cfg)?;
+    let heads = 1 + usize::from(!cfg.curve_only_names.is_empty());
+    let total = heads * cfg.candidates.len();
+    let done = std::sync::atomic::AtomicUsize::new(0);
+    let step = &|| {
+        step(
+            done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1,
+            total,
+        )
+    };
     if let Some(v) = suite {
         if v.feature_names != set.feature_names {
             return Err(ModelError::InvalidConfig {
@@ -882,7 +904,14 @@ pub fn fit_with_suite(
         }
     }
     let all: Vec<usize> = (0..set.feature_names.len()).collect();
-    let full = fit_head(Head::Full, all.clone(), set, suite, cfg, mix(cfg.seed, 1))?;
+    let full = fit_head(
+        Head::Full,
+        all.clone(),
+        (set, suite),
+        cfg,
+        mix(cfg.seed, 1),
+        step,
+    )?;
     let curve = if cfg.curve_only_names.is_empty() {
         None
     } else {
@@ -895,10 +924,10 @@ pub fn fit_with_suite(
         Some(fit_head(
             Head::CurveOnly,
             cols,
-            set,
-            suite,
+            (set, suite),
             cfg,
             mix(cfg.seed, 2),
+            step,
         )?)
     };
 

@@ -59,7 +59,7 @@ pub mod verdict;
 
 pub use card::ModelCard;
 pub use error::ModelError;
-pub use fit::{Candidate, FitConfig, fit, fit_with_suite};
+pub use fit::{Candidate, FitConfig, fit, fit_with_progress, fit_with_suite};
 pub use model_file::{FORMAT_VERSION, MAGIC};
 pub use verdict::{Reason, VerdictPolicy, decide, decide_unusable, reasons_field};
 
