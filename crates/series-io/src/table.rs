@@ -10,7 +10,7 @@ use csv::ByteRecord;
 use crate::SeriesTable;
 use crate::cell::{Cell, CellProblem, is_decimal_comma, parse_number_with};
 use crate::error::{InputError, show_cell, show_names};
-use crate::timeaxis::{TimeAxis, TimeKind, TimeValue, UnevenSteps, parse_time, spacing};
+use crate::timeaxis::{TimeAxis, TimeKind, UnevenSteps, format_time, parse_time, spacing};
 
 /// First-column names taken as the time axis when no column is named (compared in any case).
 pub const TIME_COLUMN_NAMES: [&str; 8] = [
@@ -214,9 +214,13 @@ pub fn read_series_from(
     let width = header.len();
     let n_series = layout.series.len();
 
-    let mut times: Vec<TimeValue> = Vec::new();
-    let mut time_text: Vec<String> = Vec::new();
-    let mut time_rows: Vec<u64> = Vec::new();
+    // The time axis is held as one number per row (its kind is the first row's); of its text
+    // only the first and the latest row are kept, and file rows only where they jump (a
+    // quoted line break), so that a long table costs little beyond its series.
+    let mut times: Vec<f64> = Vec::new();
+    let mut time_kind: Option<TimeKind> = None;
+    let (mut first_text, mut prev_text) = (String::new(), String::new());
+    let mut time_rows = RowIndex::default();
     let mut columns: Vec<Vec<f64>> = vec![Vec::new(); n_series];
     let mut missing = vec![0usize; n_series];
     let mut rows = 0usize;
@@ -254,8 +258,8 @@ pub fn read_series_from(
                 }
                 Err(p) => return Err(cell_error(file, row, &header[tc], text, p)),
             };
-            if let Some(first) = times.first()
-                && first.kind != t.kind
+            if let Some(first) = time_kind
+                && first != t.kind
             {
                 return Err(InputError::TimeKindMixed {
                     file,
@@ -265,24 +269,29 @@ pub fn read_series_from(
                         "the time {} is a {}, but the first row's time is a {}",
                         text.trim(),
                         t.kind.as_str(),
-                        first.kind.as_str()
+                        first.as_str()
                     ),
                 });
             }
-            if let Some(prev) = times.last()
-                && t.value <= prev.value
+            if let Some(&prev) = times.last()
+                && t.value <= prev
             {
                 return Err(InputError::TimeNotIncreasing {
                     file,
                     row,
                     column: header[tc].clone(),
-                    previous: time_text.last().cloned().unwrap_or_default(),
+                    previous: prev_text,
                     value: text.trim().to_string(),
                 });
             }
-            times.push(t);
-            time_text.push(text.trim().to_string());
-            time_rows.push(row);
+            if times.is_empty() {
+                time_kind = Some(t.kind);
+                first_text = text.trim().to_string();
+            }
+            prev_text.clear();
+            prev_text.push_str(text.trim());
+            time_rows.push(times.len(), row);
+            times.push(t.value);
         }
         for (j, &c) in layout.series.iter().enumerate() {
             let text = field_text(&file, row, &header[c], &record[c])?;
@@ -308,8 +317,10 @@ pub fn read_series_from(
             let axis = TimeAxisInput {
                 file: &file,
                 column: &header[tc],
-                values: &times,
-                text: &time_text,
+                values: times,
+                kind: time_kind.unwrap_or(TimeKind::Number),
+                first: first_text,
+                last: prev_text,
                 rows: &time_rows,
             };
             let (time, axis) = axis.check(opts, &mut columns, &mut missing, &mut warnings)?;
@@ -346,48 +357,73 @@ pub fn read_series_from(
 struct TimeAxisInput<'a> {
     file: &'a str,
     column: &'a str,
-    values: &'a [TimeValue],
-    text: &'a [String],
-    rows: &'a [u64],
+    values: Vec<f64>,
+    kind: TimeKind,
+    /// The first and last times as written.
+    first: String,
+    last: String,
+    rows: &'a RowIndex,
+}
+
+/// The file row of each data row, held as the rows where the numbering jumps (a quoted line
+/// break makes one record span several lines), not one number per row.
+#[derive(Debug, Default)]
+struct RowIndex {
+    /// (data row index, file row) wherever the file row is not the previous one plus one.
+    jumps: Vec<(usize, u64)>,
+}
+
+impl RowIndex {
+    fn push(&mut self, index: usize, row: u64) {
+        if index == 0 || self.row(index - 1) + 1 != row {
+            self.jumps.push((index, row));
+        }
+    }
+
+    fn row(&self, index: usize) -> u64 {
+        let k = self.jumps.partition_point(|&(i, _)| i <= index);
+        let (i, r) = self.jumps[k - 1];
+        r + (index - i) as u64
+    }
 }
 
 impl TimeAxisInput<'_> {
     /// Check the spacing; fill whole missing steps with empty rows when asked.
     fn check(
-        &self,
+        self,
         opts: &ReadOptions,
         columns: &mut [Vec<f64>],
         missing: &mut [usize],
         warnings: &mut Vec<String>,
     ) -> Result<(Vec<f64>, TimeAxis), InputError> {
-        let values: Vec<f64> = self.values.iter().map(|v| v.value).collect();
         let mut axis = TimeAxis {
             column: self.column.to_string(),
-            kind: self.values.first().map_or(TimeKind::Number, |v| v.kind),
-            first: self.text.first().cloned().unwrap_or_default(),
-            last: self.text.last().cloned().unwrap_or_default(),
+            kind: self.kind,
+            first: self.first.clone(),
+            last: self.last.clone(),
             step: String::new(),
             uneven_steps: 0,
             filled_rows: 0,
         };
         if self.values.len() < 2 {
-            return Ok((values, axis));
+            return Ok((self.values, axis));
         }
-        let sp = spacing(self.values);
+        let sp = spacing(&self.values, self.kind);
         axis.step = sp.step.clone();
         axis.uneven_steps = sp.uneven();
         let Some(first_bad) = sp.first_uneven() else {
-            return Ok((values, axis));
+            return Ok((self.values, axis));
         };
+        let values = &self.values;
         let whole = sp.multiples.iter().all(Option::is_some);
         let refuse = |fix: &str| InputError::UnevenSteps {
             file: self.file.to_string(),
-            row: self.rows[first_bad + 1],
+            row: self.rows.row(first_bad + 1),
             column: self.column.to_string(),
             detail: format!(
                 "the step from {} to {} is {}, but the usual step is {} ({} of {} steps differ)",
-                self.text[first_bad],
-                self.text[first_bad + 1],
+                format_time(values[first_bad], self.kind),
+                format_time(values[first_bad + 1], self.kind),
                 sp.words(first_bad),
                 sp.step,
                 sp.uneven(),
@@ -416,7 +452,7 @@ impl TimeAxisInput<'_> {
                     sp.multiples.len(),
                     sp.step
                 ));
-                Ok((values, axis))
+                Ok((self.values, axis))
             }
             UnevenSteps::FillGaps if !whole => Err(refuse(
                 "Some uneven steps are not whole multiples of the usual step, so no empty rows \
@@ -429,7 +465,7 @@ impl TimeAxisInput<'_> {
                 if total > opts.max_rows || total.saturating_mul(columns.len()) > opts.max_cells {
                     return Err(InputError::TooManyRows {
                         file: self.file.to_string(),
-                        row: self.rows[first_bad + 1],
+                        row: self.rows.row(first_bad + 1),
                         limit: opts.max_rows.min(opts.max_cells / columns.len().max(1)),
                     });
                 }

@@ -62,14 +62,12 @@ pub struct TimeAxis {
     pub filled_rows: usize,
 }
 
-/// One parsed time value: its number on the axis and its calendar parts (dates only).
+/// One parsed time value: its kind and its number on the axis.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(crate) struct TimeValue {
     pub(crate) kind: TimeKind,
     /// Days since 1970-01-01 (dates), seconds since the epoch (date-times) or the number.
     pub(crate) value: f64,
-    /// Year, month and day for dates, to recognise monthly and yearly steps.
-    pub(crate) ymd: Option<(i64, u32, u32)>,
 }
 
 /// Parse one time cell: a number, or an ISO 8601 date or date-time.
@@ -81,7 +79,6 @@ pub(crate) fn parse_time(raw: &str, decimal_comma: bool) -> Result<Option<TimeVa
             return Ok(Some(TimeValue {
                 kind: TimeKind::Number,
                 value,
-                ymd: None,
             }));
         }
         Err(CellProblem::Infinite) => return Err(CellProblem::Infinite),
@@ -116,7 +113,6 @@ pub(crate) fn parse_iso(text: &str) -> Option<TimeValue> {
         return Some(TimeValue {
             kind: TimeKind::Date,
             value: days as f64,
-            ymd: Some((year, month, day)),
         });
     }
     if b[10] != b'T' && b[10] != b' ' {
@@ -130,7 +126,6 @@ pub(crate) fn parse_iso(text: &str) -> Option<TimeValue> {
     Some(TimeValue {
         kind: TimeKind::DateTime,
         value: days as f64 * 86_400.0 + seconds_of_day - offset,
-        ymd: None,
     })
 }
 
@@ -229,8 +224,31 @@ pub(crate) struct Spacing {
     /// For each step i (between rows i and i+1), how many usual steps it spans: `Some(1)` for
     /// a usual step, `Some(k)` for a whole multiple, `None` for anything else.
     pub(crate) multiples: Vec<Option<usize>>,
-    /// Steps as written in words, for messages, indexed like `multiples`.
-    step_words: Vec<String>,
+    /// Each step in `unit`s, indexed like `multiples` (put in words only for a message, so
+    /// that a long axis holds one number per step rather than one string).
+    steps: Vec<f64>,
+    unit: StepUnit,
+}
+
+/// What the numbers of [`Spacing::steps`] count.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum StepUnit {
+    Number,
+    Days,
+    Seconds,
+    Months,
+}
+
+impl StepUnit {
+    fn words(self, d: f64) -> String {
+        match self {
+            StepUnit::Number => crate::output::format_f64(d),
+            StepUnit::Days => plural(d, "day"),
+            StepUnit::Seconds => duration_words(d),
+            StepUnit::Months if d % 12.0 == 0.0 => plural(d / 12.0, "year"),
+            StepUnit::Months => plural(d, "month"),
+        }
+    }
 }
 
 impl Spacing {
@@ -245,28 +263,28 @@ impl Spacing {
     }
 
     /// Step `i` in words.
-    pub(crate) fn words(&self, i: usize) -> &str {
-        &self.step_words[i]
+    pub(crate) fn words(&self, i: usize) -> String {
+        self.unit.words(self.steps[i])
     }
 }
 
-/// Find the usual step of an increasing axis (at least two values) and which steps differ.
+/// Find the usual step of an increasing axis (at least two values, all of one `kind`) and
+/// which steps differ.
 ///
 /// Dates step in days, except when every date falls on the same day of the month and the
 /// steps are equal in months (monthly or yearly records, whose lengths in days vary).
-pub(crate) fn spacing(values: &[TimeValue]) -> Spacing {
-    let kind = values[0].kind;
+pub(crate) fn spacing(values: &[f64], kind: TimeKind) -> Spacing {
     if kind == TimeKind::Date
         && let Some(s) = monthly_spacing(values)
     {
         return s;
     }
-    let steps: Vec<f64> = values.windows(2).map(|w| w[1].value - w[0].value).collect();
+    let steps: Vec<f64> = values.windows(2).map(|w| w[1] - w[0]).collect();
     let usual = mode(&steps);
-    let words = |d: f64| match kind {
-        TimeKind::Number => crate::output::format_f64(d),
-        TimeKind::Date => plural(d, "day"),
-        TimeKind::DateTime => duration_words(d),
+    let unit = match kind {
+        TimeKind::Number => StepUnit::Number,
+        TimeKind::Date => StepUnit::Days,
+        TimeKind::DateTime => StepUnit::Seconds,
     };
     let multiples = steps
         .iter()
@@ -278,43 +296,91 @@ pub(crate) fn spacing(values: &[TimeValue]) -> Spacing {
         })
         .collect();
     Spacing {
-        step: words(usual),
+        step: unit.words(usual),
         multiples,
-        step_words: steps.iter().map(|&d| words(d)).collect(),
+        steps,
+        unit,
     }
 }
 
-/// Monthly spacing: the same day of the month throughout and equal steps in months.
-fn monthly_spacing(values: &[TimeValue]) -> Option<Spacing> {
-    let ymd: Vec<(i64, u32, u32)> = values.iter().map(|v| v.ymd).collect::<Option<_>>()?;
-    let day = ymd[0].2;
-    if day > 28 || ymd.iter().any(|&(_, _, d)| d != day) {
+/// Monthly spacing of dates (days since 1970-01-01): the same day of the month throughout and
+/// equal steps in months.
+fn monthly_spacing(days: &[f64]) -> Option<Spacing> {
+    let day = civil_from_days(days[0] as i64).2;
+    if day > 28 {
         return None;
     }
-    let months: Vec<i64> = ymd
-        .windows(2)
-        .map(|w| (w[1].0 - w[0].0) * 12 + i64::from(w[1].1) - i64::from(w[0].1))
-        .collect();
-    let as_f: Vec<f64> = months.iter().map(|&m| m as f64).collect();
-    let usual = mode(&as_f) as i64;
+    let mut months = Vec::with_capacity(days.len().saturating_sub(1));
+    let mut prev: Option<i64> = None;
+    for &d in days {
+        let (y, m, dd) = civil_from_days(d as i64);
+        if dd != day {
+            return None;
+        }
+        let index = y * 12 + i64::from(m);
+        if let Some(p) = prev {
+            months.push((index - p) as f64);
+        }
+        prev = Some(index);
+    }
+    let usual = mode(&months) as i64;
     if usual < 1 {
         return None;
     }
-    let words = |m: i64| {
-        if m % 12 == 0 {
-            plural((m / 12) as f64, "year")
-        } else {
-            plural(m as f64, "month")
-        }
-    };
     Some(Spacing {
-        step: words(usual),
+        step: StepUnit::Months.words(usual as f64),
         multiples: months
             .iter()
-            .map(|&m| (m % usual == 0).then_some((m / usual) as usize))
+            .map(|&m| {
+                let m = m as i64;
+                (m % usual == 0).then_some((m / usual) as usize)
+            })
             .collect(),
-        step_words: months.iter().map(|&m| words(m)).collect(),
+        steps: months,
+        unit: StepUnit::Months,
     })
+}
+
+/// The calendar date of a day number (days since 1970-01-01, proleptic Gregorian): the
+/// `civil_from_days` algorithm of Hinnant, "chrono-Compatible Low-Level Date Algorithms".
+fn civil_from_days(z: i64) -> (i64, u32, u32) {
+    let z = z + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let day = (doy - (153 * mp + 2) / 5 + 1) as u32;
+    let month = if mp < 10 { mp + 3 } else { mp - 9 } as u32;
+    (yoe + era * 400 + i64::from(month <= 2), month, day)
+}
+
+/// A time value as ISO 8601 (dates, and date-times in UTC with a `Z`) or as a number, for
+/// messages about rows whose text is no longer held.
+pub(crate) fn format_time(value: f64, kind: TimeKind) -> String {
+    match kind {
+        TimeKind::Number => crate::output::format_f64(value),
+        TimeKind::Date => {
+            let (y, m, d) = civil_from_days(value as i64);
+            format!("{y:04}-{m:02}-{d:02}")
+        }
+        TimeKind::DateTime => {
+            let days = (value / 86_400.0).floor();
+            let (y, m, d) = civil_from_days(days as i64);
+            let secs = value - days * 86_400.0;
+            let (h, mi) = ((secs / 3600.0).floor(), ((secs % 3600.0) / 60.0).floor());
+            let sec = secs - h * 3600.0 - mi * 60.0;
+            let sec = if sec.fract() == 0.0 {
+                format!("{:02}", sec as u32)
+            } else {
+                format!("{sec:06.3}")
+            };
+            format!(
+                "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{sec}Z",
+                h as u32, mi as u32
+            )
+        }
+    }
 }
 
 /// The most common value (steps compared to 1e-9 relative), the smallest on ties.
@@ -418,7 +484,38 @@ mod tests {
     }
 
     fn axis(v: &[&str]) -> Spacing {
-        spacing(&v.iter().map(|s| t(s)).collect::<Vec<_>>())
+        let values: Vec<TimeValue> = v.iter().map(|s| t(s)).collect();
+        let numbers: Vec<f64> = values.iter().map(|v| v.value).collect();
+        spacing(&numbers, values[0].kind)
+    }
+
+    #[test]
+    fn day_numbers_and_formatted_times_round_trip() {
+        // Hinnant's civil_from_days inverts days_from_civil; checked on the published
+        // instants of the test above and on leap days.
+        for s in [
+            "1970-01-01",
+            "2000-02-29",
+            "1969-12-31",
+            "2020-03-01",
+            "1900-03-01",
+        ] {
+            assert_eq!(format_time(t(s).value, TimeKind::Date), s);
+        }
+        assert_eq!(
+            format_time(t("2009-02-14T01:31:30+02:00").value, TimeKind::DateTime),
+            "2009-02-13T23:31:30Z"
+        );
+        assert_eq!(
+            format_time(t("2020-01-31T06:00:30.5").value, TimeKind::DateTime),
+            "2020-01-31T06:00:30.500Z"
+        );
+        assert_eq!(format_time(1990.0, TimeKind::Number), "1990");
+        let sp = axis(&["2020-01-15", "2020-02-15", "2021-02-15"]);
+        assert_eq!(
+            (sp.words(0), sp.words(1)),
+            ("1 month".into(), "1 year".into())
+        );
     }
 
     #[test]
