@@ -50,12 +50,8 @@ fn check(name: &str, actual: &str) {
         std::fs::write(&path, actual).unwrap();
         return;
     }
-    let expected = std::fs::read_to_string(&path).unwrap_or_else(|e| {
-        panic!(
-            "{}: {e}; record it with UPDATE_SNAPSHOTS=1",
-            path.display()
-        )
-    });
+    let expected = std::fs::read_to_string(&path)
+        .unwrap_or_else(|e| panic!("{}: {e}; record it with UPDATE_SNAPSHOTS=1", path.display()));
     if expected != actual {
         let line = expected
             .lines()

@@ -1,4 +1,6 @@
 //! Helpers shared by the end-to-end tests.
+// Each test binary compiles this module and uses only part of it.
+#![allow(dead_code)]
 
 use std::collections::BTreeMap;
 use std::path::Path;

@@ -1,20 +1,8 @@
 //! Summaries that ignore non-finite values, least-squares slopes and the normal tail.
 
-/// The finite values of `values`, in their original order.
-///
-/// NaN marks a replicate whose skill was undefined; infinities cannot be skills either, so
-/// every statistic in this crate treats all non-finite values as missing.
-pub(crate) fn finite(values: &[f64]) -> Vec<f64> {
-    values.iter().copied().filter(|v| v.is_finite()).collect()
-}
-
-/// Finite values sorted ascending.
-pub(crate) fn sorted_finite(values: &[f64]) -> Vec<f64> {
-    let mut v = finite(values);
-    // Elements equal under total_cmp are bitwise equal, so an unstable sort loses nothing.
-    v.sort_unstable_by(f64::total_cmp);
-    v
-}
+// NaN marks a replicate whose skill was undefined; infinities cannot be skills either, so
+// every statistic in this crate treats all non-finite values as missing.
+pub(crate) use sample_stats::{finite, quantile_sorted, sorted_finite};
 
 /// The finite values of one sample, sorted once so every summary reads the same slice.
 ///
@@ -72,18 +60,6 @@ pub(crate) fn mean(values: &[f64]) -> Option<f64> {
 /// Sample standard deviation (divisor n - 1) of the finite values; `None` below two values.
 pub(crate) fn sd(values: &[f64]) -> Option<f64> {
     Summary::new(values).sd()
-}
-
-/// Quantile `q` in [0, 1] of ascending `sorted` values by linear interpolation between order
-/// statistics (position (n - 1) q), the default rule of numpy's `percentile`.
-pub(crate) fn quantile_sorted(sorted: &[f64], q: f64) -> Option<f64> {
-    if sorted.is_empty() {
-        return None;
-    }
-    let h = (sorted.len() - 1) as f64 * q.clamp(0.0, 1.0);
-    let lo = h.floor() as usize;
-    let hi = (lo + 1).min(sorted.len() - 1);
-    Some(sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo]))
 }
 
 /// Median of the finite values.

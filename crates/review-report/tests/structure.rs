@@ -112,7 +112,8 @@ fn forty_variables_scale_down_and_cap_the_plots() {
         );
     }
     let mb = html.len() as f64 / 1e6;
-    assert!(mb < 4.5, "page weighs {mb:.1} MB");
+    // 200 panels of two figures with legends inside them, and 1,560 shaded cells.
+    assert!(mb < 5.0, "page weighs {mb:.2} MB");
 }
 
 #[test]

@@ -60,16 +60,9 @@ fn spd_inverse(a: &[f64], d: usize) -> Option<Vec<f64>> {
 }
 
 /// Linear-interpolation percentile (`q` in 0..=100) of `v`, as numpy's default.
+/// Infinite for an empty sample (nothing is familiar).
 pub fn percentile(v: &[f64], q: f64) -> f64 {
-    if v.is_empty() {
-        return f64::INFINITY;
-    }
-    let mut s = v.to_vec();
-    s.sort_by(f64::total_cmp);
-    let pos = (q / 100.0).clamp(0.0, 1.0) * (s.len() - 1) as f64;
-    let lo = pos.floor() as usize;
-    let hi = pos.ceil() as usize;
-    s[lo] + (s[hi] - s[lo]) * (pos - lo as f64)
+    sample_stats::quantile(v, q / 100.0).unwrap_or(f64::INFINITY)
 }
 
 impl OodModel {
