@@ -178,17 +178,7 @@ fn utc_date(secs: u64) -> String {
 /// Seconds since 1970-01-01 00:00:00 UTC as the date `YYYY-MM-DD` and the time `HH:MM:SS`.
 fn civil(secs: u64) -> (String, String) {
     let (days, rem) = (secs / 86_400, secs % 86_400);
-    // Days since 1970-01-01 to a civil date (the proleptic Gregorian algorithm of
-    // Howard Hinnant's "chrono-compatible low-level date algorithms", from memory).
-    let z = days as i64 + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z - era * 146_097;
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let day = doy - (153 * mp + 2) / 5 + 1;
-    let month = if mp < 10 { mp + 3 } else { mp - 9 };
-    let year = yoe + era * 400 + i64::from(month <= 2);
+    let (year, month, day) = crate::timeaxis::civil_from_days(days as i64);
     (
         format!("{year:04}-{month:02}-{day:02}"),
         format!("{:02}:{:02}:{:02}", rem / 3600, rem % 3600 / 60, rem % 60),

@@ -343,7 +343,7 @@ fn monthly_spacing(days: &[f64]) -> Option<Spacing> {
 
 /// The calendar date of a day number (days since 1970-01-01, proleptic Gregorian): the
 /// `civil_from_days` algorithm of Hinnant, "chrono-Compatible Low-Level Date Algorithms".
-fn civil_from_days(z: i64) -> (i64, u32, u32) {
+pub(crate) fn civil_from_days(z: i64) -> (i64, u32, u32) {
     let z = z + 719_468;
     let era = z.div_euclid(146_097);
     let doe = z - era * 146_097;
