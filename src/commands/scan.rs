@@ -206,7 +206,7 @@ pub fn merge(args: MergeArgs, quiet: bool) -> anyhow::Result<()> {
         &policy,
         &model,
         "merge",
-        Some(serde_json::json!(shards)),
+        Some(shards),
         started,
         decisions,
     )?;

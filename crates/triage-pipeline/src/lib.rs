@@ -27,6 +27,7 @@ pub mod orchestration;
 mod quality;
 mod report_view;
 pub mod reviewed;
+pub mod run_record;
 mod selection;
 pub mod settings;
 pub mod tables;

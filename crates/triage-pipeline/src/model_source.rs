@@ -64,11 +64,14 @@ pub fn load(path: Option<&Path>) -> anyhow::Result<LoadedModel> {
 }
 
 /// The model's identity as run.json records it.
-pub fn model_record(model: &LoadedModel) -> serde_json::Value {
-    serde_json::json!({
-        "source": model.source,
-        "sha256": model.sha256,
-        "training_spec": {"name": model.bundle.spec.name, "hash": model.bundle.spec.hash},
-        "schema_hash": model.bundle.schema_hash,
-    })
+pub fn model_record(model: &LoadedModel) -> crate::run_record::ModelRecord {
+    crate::run_record::ModelRecord {
+        source: model.source.clone(),
+        sha256: model.sha256.clone(),
+        training_spec: crate::run_record::SpecRecord {
+            name: model.bundle.spec.name.clone(),
+            hash: model.bundle.spec.hash.clone(),
+        },
+        schema_hash: model.bundle.schema_hash.clone(),
+    }
 }

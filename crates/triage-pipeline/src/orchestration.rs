@@ -23,6 +23,10 @@ use series_io::{DecisionFile, DirLock, JsonDocument, OutputDir, SeriesTable, Tex
 use verdict_model::{Verdict, VerdictPolicy};
 
 use crate::model_source::{LoadedModel, model_record};
+use crate::run_record::{
+    CycleRecord, DecisionCounts, EmbeddingRecord, InputRecord, Invocation, RUN_RECORD_FORMAT,
+    RunRecord, SchemaRecord, SelectionRecord, TimeAxisRecord, Timing,
+};
 use crate::selection::{PairSelection, ResolvedSelection};
 use crate::settings::{EngineSettings, TableSettings, analysis_settings_json};
 use crate::tables;
@@ -474,7 +478,7 @@ pub struct Finished {
     /// What the report says about the run.
     pub facts: RunFacts,
     /// The run record (run.json).
-    pub run: serde_json::Value,
+    pub run: RunRecord,
     /// Reviewer decisions shown beside the verdicts (labels.csv, the report).
     pub decisions: Option<DecisionFile>,
     /// How the report and the per-pair figures are drawn.
@@ -595,7 +599,7 @@ pub fn finish(
     policy: &VerdictPolicy,
     model: &LoadedModel,
     command: &str,
-    shards: Option<serde_json::Value>,
+    shards: Option<Vec<String>>,
     started: Instant,
     decisions: Option<DecisionFile>,
 ) -> anyhow::Result<Finished> {
@@ -606,46 +610,39 @@ pub fn finish(
     let judgements = judge(&pairs, &model.bundle, policy)?;
     let table = &p.table;
     let cycles = cycle_facts(&p.series, &p.settings);
-    let mut run = serde_json::json!({
-        "tool": "ccm-triage",
-        "version": TOOL_VERSION,
-        "commit": TOOL_COMMIT,
-        "command": command,
-        "invocation": invocation_record(started),
-        "input": {
-            "path": p.manifest.input.path,
-            "absolute_path": absolute(Path::new(&p.manifest.input.path)),
-            "sha256": table.sha256,
-            "rows": table.n_rows(),
-            "time_column": table.time_column,
-            "time_axis": time_axis_record(table),
-            "warnings": table.warnings,
-            "series": table.names,
-            "missing_cells": table.missing,
-            "missing_cells_total": table.total_missing(),
+    let run = RunRecord {
+        command: command.to_string(),
+        input: InputRecord {
+            rows: Some(table.n_rows()),
+            time_column: table.time_column.clone(),
+            time_axis: time_axis_record(table),
+            warnings: Some(table.warnings.clone()),
+            series: Some(table.names.clone()),
+            missing_cells: Some(table.missing.clone()),
+            missing_cells_total: Some(table.total_missing()),
+            ..input_record(&p.manifest.input.path, &table.sha256)
         },
-        "settings": p.manifest.settings,
-        "embedding": embedding_record(&p.series.names, &p.embeddings),
-        "cycles": cycles_record(&p.series.names, &cycles),
-        "model": model_record(model),
-        "review_band": [policy.band.0, policy.band.1],
-        "feature_schema": {"version": ensemble_features::SCHEMA_VERSION, "hash": ensemble_features::schema_hash()},
-        "pairs": pairs.len(),
-        "selection": {
-            "drivers": p.manifest.flags["select"]["drivers"],
-            "responses": p.manifest.flags["select"]["responses"],
-            "manifolds": p.manifest.manifolds.as_ref().map(|m| {
-                m.iter().map(|&k| p.series.names[k].clone()).collect::<Vec<_>>()
-            }),
+        settings: Some(p.manifest.settings.clone()),
+        selection: Some(SelectionRecord {
+            drivers: p.manifest.flags["select"]["drivers"].clone(),
+            responses: p.manifest.flags["select"]["responses"].clone(),
+            manifolds: p
+                .manifest
+                .manifolds
+                .as_ref()
+                .map(|m| m.iter().map(|&k| p.series.names[k].clone()).collect()),
+        }),
+        embedding: Some(embedding_record(&p.series.names, &p.embeddings)),
+        cycles: Some(cycles_record(&p.series.names, &cycles)),
+        pairs: pairs.len(),
+        shards,
+        decisions: decisions_record(decisions.as_ref()),
+        timing: Timing {
+            seconds: started.elapsed().as_secs_f64(),
+            threads: Some(rayon::current_num_threads()),
         },
-        "timing": {"seconds": started.elapsed().as_secs_f64(), "threads": rayon::current_num_threads()},
-    });
-    if let Some(shards) = shards {
-        run["shards"] = shards;
-    }
-    if let Some(v) = decisions_record(decisions.as_ref()) {
-        run["decisions"] = v;
-    }
+        ..run_record_base(policy, model, started)
+    };
     let facts = RunFacts {
         input_name: file_name(Path::new(&p.manifest.input.path)),
         input_sha256: Some(table.sha256.clone()),
@@ -701,9 +698,7 @@ pub fn label_curves(
         .with_context(|| format!("cannot read {}", path.display()))?;
     let decisions = load_decisions(decisions, &sha)?;
     let mut finished = label_records(names, records, sha, recorded_path, policy, model, started)?;
-    if let Some(v) = decisions_record(decisions.as_ref()) {
-        finished.run["decisions"] = v;
-    }
+    finished.run.decisions = decisions_record(decisions.as_ref());
     finished.decisions = decisions;
     Ok(finished)
 }
@@ -732,24 +727,20 @@ fn label_records(
     started: Instant,
 ) -> anyhow::Result<Finished> {
     let judgements = judge(&records, &model.bundle, policy)?;
-    let run = serde_json::json!({
-        "tool": "ccm-triage",
-        "version": TOOL_VERSION,
-        "commit": TOOL_COMMIT,
-        "command": "label",
-        "invocation": invocation_record(started),
-        "input": {
-            "path": recorded_path,
-            // Ensembles held in memory (the Python module) have no file to point at.
-            "absolute_path": Path::new(recorded_path).exists().then(|| absolute(Path::new(recorded_path))),
-            "sha256": sha,
+    let mut input = input_record(recorded_path, &sha);
+    // Ensembles held in memory (the Python module) have no file to point at.
+    if !Path::new(recorded_path).exists() {
+        input.absolute_path = None;
+    }
+    let run = RunRecord {
+        input,
+        pairs: records.len(),
+        timing: Timing {
+            seconds: started.elapsed().as_secs_f64(),
+            threads: None,
         },
-        "model": model_record(model),
-        "review_band": [policy.band.0, policy.band.1],
-        "feature_schema": {"version": ensemble_features::SCHEMA_VERSION, "hash": ensemble_features::schema_hash()},
-        "pairs": records.len(),
-        "timing": {"seconds": started.elapsed().as_secs_f64()},
-    });
+        ..run_record_base(policy, model, started)
+    };
     let facts = RunFacts {
         input_name: file_name(Path::new(recorded_path)),
         input_sha256: Some(sha),
@@ -893,35 +884,79 @@ pub fn load_decisions(
 }
 
 /// What run.json records about the decisions shown beside the verdicts: counts per decision.
-pub fn decisions_record(d: Option<&DecisionFile>) -> Option<serde_json::Value> {
+pub fn decisions_record(d: Option<&DecisionFile>) -> Option<DecisionCounts> {
     d.map(|d| {
         let count = |k: series_io::Decision| d.rows.iter().filter(|r| r.decision == k).count();
-        serde_json::json!({
-            "rows": d.rows.len(),
-            "causal": count(series_io::Decision::Causal),
-            "non_causal": count(series_io::Decision::NonCausal),
-            "unsure": count(series_io::Decision::Unsure),
-        })
+        DecisionCounts {
+            rows: d.rows.len(),
+            causal: count(series_io::Decision::Causal),
+            non_causal: count(series_io::Decision::NonCausal),
+            unsure: count(series_io::Decision::Unsure),
+        }
     })
 }
 
 /// The time axis as found: kind, first and last time, usual step, uneven and filled steps
-/// (`null` without a time axis).
-pub fn time_axis_record(table: &SeriesTable) -> serde_json::Value {
-    table
-        .time_axis
-        .as_ref()
-        .map_or(serde_json::Value::Null, |a| {
-            serde_json::json!({
-                "column": a.column, "kind": a.kind.as_str(), "first": a.first, "last": a.last,
-                "step": a.step, "uneven_steps": a.uneven_steps, "filled_rows": a.filled_rows,
-            })
-        })
+/// (`None` without a time axis).
+pub fn time_axis_record(table: &SeriesTable) -> Option<TimeAxisRecord> {
+    table.time_axis.as_ref().map(|a| TimeAxisRecord {
+        column: a.column.clone(),
+        kind: a.kind.as_str().to_string(),
+        first: a.first.clone(),
+        last: a.last.clone(),
+        step: a.step.clone(),
+        uneven_steps: a.uneven_steps,
+        filled_rows: a.filled_rows,
+    })
+}
+
+/// The parts of run.json every labelling run has, for `started` (pairs, input and timing
+/// are the caller's).
+fn run_record_base(policy: &VerdictPolicy, model: &LoadedModel, started: Instant) -> RunRecord {
+    RunRecord {
+        tool: "ccm-triage".into(),
+        version: TOOL_VERSION.into(),
+        commit: TOOL_COMMIT.into(),
+        format: RUN_RECORD_FORMAT,
+        command: "label".into(),
+        invocation: invocation_record(started),
+        input: input_record("", ""),
+        settings: None,
+        selection: None,
+        embedding: None,
+        cycles: None,
+        model: model_record(model),
+        feature_schema: SchemaRecord::current(),
+        review_band: [policy.band.0, policy.band.1],
+        pairs: 0,
+        shards: None,
+        decisions: None,
+        timing: Timing {
+            seconds: 0.0,
+            threads: None,
+        },
+    }
+}
+
+/// The input as given and as an absolute path, with its checksum.
+fn input_record(path: &str, sha256: &str) -> InputRecord {
+    InputRecord {
+        path: path.to_string(),
+        absolute_path: Some(absolute(Path::new(path))),
+        sha256: sha256.to_string(),
+        rows: None,
+        time_column: None,
+        time_axis: None,
+        warnings: None,
+        series: None,
+        missing_cells: None,
+        missing_cells_total: None,
+    }
 }
 
 /// How this process was started, for run.json: the full command line (the arguments as the
 /// shell passed them), the working directory, and the start time as an ISO 8601 UTC timestamp.
-pub fn invocation_record(started: Instant) -> serde_json::Value {
+pub fn invocation_record(started: Instant) -> Invocation {
     let argv: Vec<String> = std::env::args_os()
         .map(|a| a.to_string_lossy().into_owned())
         .collect();
@@ -933,7 +968,11 @@ pub fn invocation_record(started: Instant) -> serde_json::Value {
         .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
         .map(|d| series_io::utc_timestamp_at(d.as_secs()))
         .unwrap_or_else(series_io::utc_timestamp);
-    serde_json::json!({"command_line": argv, "working_directory": cwd, "started_at": started_at})
+    Invocation {
+        command_line: argv,
+        working_directory: cwd,
+        started_at,
+    }
 }
 
 /// `path` made absolute against the working directory (symbolic links kept), as text.
@@ -978,30 +1017,30 @@ pub fn settings_record(
 }
 
 /// Each variable's dominant cycle as the seasonal surrogates used it (strength 0: no season).
-fn cycles_record(names: &[String], cycles: &[CycleFact]) -> serde_json::Value {
+fn cycles_record(names: &[String], cycles: &[CycleFact]) -> Vec<CycleRecord> {
     names
         .iter()
         .zip(cycles)
-        .map(|(n, c)| {
-            serde_json::json!({
-                "variable": n,
-                "period": c.cycle.map(|c| c.0),
-                "strength": c.cycle.map(|c| c.1),
-                "season": c.season,
-            })
+        .map(|(n, c)| CycleRecord {
+            variable: n.clone(),
+            period: c.cycle.map(|c| c.0),
+            strength: c.cycle.map(|c| c.1),
+            season: c.season,
         })
         .collect()
 }
 
-fn embedding_record(names: &[String], embeddings: &[Embedding]) -> serde_json::Value {
+fn embedding_record(names: &[String], embeddings: &[Embedding]) -> Vec<EmbeddingRecord> {
     names
         .iter()
         .zip(embeddings)
-        .map(|(n, e)| {
-            serde_json::json!({
-                "variable": n, "E": e.e, "tau": e.tau, "simplex_skill": e.simplex_skill,
-                "skill_by_E": e.skill_by_e, "vectors_excluded": e.vectors_excluded,
-            })
+        .map(|(n, e)| EmbeddingRecord {
+            variable: n.clone(),
+            e: e.e,
+            tau: e.tau,
+            simplex_skill: e.simplex_skill,
+            skill_by_e: e.skill_by_e.clone(),
+            vectors_excluded: e.vectors_excluded,
         })
         .collect()
 }
