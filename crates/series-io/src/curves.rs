@@ -109,10 +109,17 @@ pub fn group_curves(rows: &[CurveRow]) -> Result<Vec<CurvePair>, InputError> {
 
 /// Write rows as a curves table with a header; skills in shortest round-trip form, NaN as
 /// `NaN`. Infinite skills are refused (the reader would reject them).
-pub fn write_curves(w: impl Write, rows: &[CurveRow]) -> io::Result<()> {
+///
+/// Rows may be borrowed (a slice) or made on the fly (a run's ensembles, written row by row
+/// so that a large table is never held as text).
+pub fn write_curves<R: std::borrow::Borrow<CurveRow>>(
+    w: impl Write,
+    rows: impl IntoIterator<Item = R>,
+) -> io::Result<()> {
     let mut out = csv::Writer::from_writer(w);
     out.write_record(CURVE_COLUMNS)?;
     for r in rows {
+        let r = r.borrow();
         if r.skill.is_infinite() {
             return Err(io::Error::new(
                 io::ErrorKind::InvalidInput,

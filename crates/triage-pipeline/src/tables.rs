@@ -2,7 +2,7 @@
 
 use crate::{CycleFact, Judgement, PairRecord};
 use crossmap_engine::Embedding;
-use series_io::{CsvTable, Export, format_f64, write_csv_rows};
+use series_io::{CsvTable, CurveRow, Export, format_f64};
 
 /// Names as written into CSV files: a name that begins with `=`, `+`, `-`, `@`, a tab or a
 /// carriage return gets a leading `'`, so a spreadsheet shows it as text instead of running
@@ -77,23 +77,17 @@ impl Export for CurvesTable<'_> {
             f.library_sizes
                 .iter()
                 .zip(&f.skills)
-                .flat_map(move |(size, skills)| {
-                    skills.iter().enumerate().map(move |(r, s)| {
-                        vec![
-                            names[rec.driver].clone(),
-                            names[rec.response].clone(),
-                            size.to_string(),
-                            (r + 1).to_string(),
-                            format_f64(*s),
-                        ]
+                .flat_map(move |(&library_size, skills)| {
+                    skills.iter().enumerate().map(move |(r, &skill)| CurveRow {
+                        driver: names[rec.driver].clone(),
+                        response: names[rec.response].clone(),
+                        library_size,
+                        replicate: r + 1,
+                        skill,
                     })
                 })
         });
-        write_csv_rows(
-            w,
-            &["driver", "response", "library_size", "replicate", "skill"],
-            rows,
-        )
+        series_io::write_curves(w, rows)
     }
 }
 
