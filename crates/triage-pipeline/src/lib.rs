@@ -16,6 +16,38 @@
 //! [`orchestration`] (scan, merge, resume, label: from a table to the result files, with
 //! [`settings`] as given by the user, [`tables`] as written, [`model_source`] for the model)
 //! and [`model_runs`] (simulate, train, evaluate).
+//!
+//! A whole scan in memory, as the command line's `scan` runs it (without the checkpoint and
+//! the files):
+//!
+//! ```
+//! use triage_pipeline::orchestration::{self as run, InputChoice, Silent};
+//! use triage_pipeline::settings::{EngineSettings, policy};
+//! use triage_pipeline::units::ShardSpec;
+//!
+//! // Two coupled logistic maps in the form of Sugihara et al. (2012): x drives y.
+//! let (mut x, mut y) = (0.4_f64, 0.2_f64);
+//! let mut csv = String::from("t,x,y\n");
+//! for t in 0..200 {
+//!     (x, y) = (x * (3.8 - 3.8 * x), y * (3.5 - 3.5 * y - 0.1 * x));
+//!     csv.push_str(&format!("{t},{x},{y}\n"));
+//! }
+//! let table = series_io::read_series_from(csv.as_bytes(), "maps.csv", &Default::default())?;
+//! let engine = EngineSettings {
+//!     replicates: 10,
+//!     surrogates: 9,
+//!     ..EngineSettings::default()
+//! };
+//! let choice = InputChoice::default();
+//! let prepared =
+//!     run::prepare_table(table, "maps.csv", "maps.csv", &choice, &engine, ShardSpec::WHOLE, &Silent)?;
+//! let model = triage_pipeline::model_source::load(None)?; // the built-in model
+//! let band = policy("0.3,0.7")?;
+//! let finished = run::scan_in_memory(&prepared, "maps.csv", false, &band, &model, &Silent)?;
+//! assert_eq!(finished.records.len(), 2); // x -> y and y -> x
+//! assert!(finished.judgements.iter().all(|j| (0.0..=1.0).contains(&j.p_causal)));
+//! # Ok::<(), anyhow::Error>(())
+//! ```
 #![deny(missing_docs)]
 
 mod assemble;
