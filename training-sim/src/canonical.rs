@@ -756,7 +756,7 @@ pub(crate) fn build(d: &CanonicalDraw) -> Result<Built, Reject> {
 mod tests {
     use super::*;
 
-    fn spec(text: &str) -> Spec {
+    fn spec(text: &str) -> crate::ValidSpec {
         Spec::from_toml_str(text).unwrap()
     }
 

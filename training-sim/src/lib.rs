@@ -41,7 +41,7 @@ pub use drawn::{DrawnParams, Structure};
 pub use family::Family;
 pub use graph::{Label, TruthRow};
 pub use render::{resolved_spec_json, truth_csv};
-pub use spec::{Spec, SpecError};
+pub use spec::{Spec, SpecError, ValidSpec};
 
 /// Redraws allowed per system before giving up.
 pub const MAX_ATTEMPTS: u32 = 64;
@@ -184,7 +184,7 @@ fn build_canonical(drawn: &CanonicalDraw) -> Option<System> {
 }
 
 /// Simulates system `index` of the spec alone (identical to its place in [`simulate`]).
-pub fn simulate_one(spec: &Spec, index: usize) -> Result<System, SimError> {
+pub fn simulate_one(spec: &ValidSpec, index: usize) -> Result<System, SimError> {
     let total = spec.total_count();
     if index >= total {
         return Err(SimError::NoSuchSystem { index, total });
@@ -216,7 +216,7 @@ pub fn simulate_one(spec: &Spec, index: usize) -> Result<System, SimError> {
 }
 
 /// Simulates every system of the spec, in index order, in parallel on the current rayon pool.
-pub fn simulate(spec: &Spec) -> Result<Vec<System>, SimError> {
+pub fn simulate(spec: &ValidSpec) -> Result<Vec<System>, SimError> {
     simulate_with_progress(spec, &|_| {})
 }
 
@@ -224,7 +224,7 @@ pub fn simulate(spec: &Spec) -> Result<Vec<System>, SimError> {
 /// number finished so far (calls may come from several threads, so values may arrive out of
 /// order; the largest is the total).
 pub fn simulate_with_progress(
-    spec: &Spec,
+    spec: &ValidSpec,
     progress: &(dyn Fn(usize) + Sync),
 ) -> Result<Vec<System>, SimError> {
     let done = AtomicUsize::new(0);
@@ -243,7 +243,7 @@ mod tests {
     use super::*;
     use std::collections::HashSet;
 
-    fn small() -> Spec {
+    fn small() -> ValidSpec {
         Spec::from_toml_str(include_str!("../specs/small.toml")).unwrap()
     }
 

@@ -543,12 +543,37 @@ impl Checker {
     }
 }
 
+/// A spec that passed every rule of [`Spec::check`]: the only kind the simulator accepts, so a
+/// spec is checked once, where it is read, and never half-checked later. Reads as a [`Spec`].
+#[derive(Debug, Clone, PartialEq, Serialize)]
+#[serde(transparent)]
+pub struct ValidSpec(Spec);
+
+impl std::ops::Deref for ValidSpec {
+    type Target = Spec;
+    fn deref(&self) -> &Spec {
+        &self.0
+    }
+}
+
+impl ValidSpec {
+    /// The spec itself, to change and check again.
+    pub fn into_inner(self) -> Spec {
+        self.0
+    }
+}
+
 impl Spec {
     /// Parses and checks a spec written in TOML.
-    pub fn from_toml_str(text: &str) -> Result<Spec, SpecError> {
+    pub fn from_toml_str(text: &str) -> Result<ValidSpec, SpecError> {
         let spec: Spec = toml::from_str(text)?;
-        spec.validate()?;
-        Ok(spec)
+        spec.check()
+    }
+
+    /// Checks every rule; the first broken one is the error.
+    pub fn check(self) -> Result<ValidSpec, SpecError> {
+        self.validate()?;
+        Ok(ValidSpec(self))
     }
 
     /// Total number of systems the spec asks for.
@@ -564,8 +589,8 @@ impl Spec {
             .sum()
     }
 
-    /// Checks every rule; returns the first broken one.
-    pub fn validate(&self) -> Result<(), SpecError> {
+    /// Checks every rule; returns the first broken one ([`Spec::check`] keeps the result).
+    fn validate(&self) -> Result<(), SpecError> {
         let mut c = Checker { first: None };
         let s = &self.sampling;
         c.int("sampling.length", s.length);

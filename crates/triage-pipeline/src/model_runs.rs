@@ -6,7 +6,7 @@ use std::path::Path;
 
 use anyhow::Context;
 use series_io::{CsvTable, JsonDocument, OutputDir};
-use training_sim::{Spec, System};
+use training_sim::{Spec, System, ValidSpec};
 use verdict_model::metrics::{Summary, summarise};
 use verdict_model::{
     FitConfig, Head, ModelBundle, SpecIdentity, TrainingSet, Verdict, VerdictPolicy,
@@ -19,7 +19,7 @@ use crate::settings::{EngineSettings, analysis_settings_json};
 use crate::{AnalysedSystem, AnalysisSettings, SkippedSystem, judge, rule_of_thumb};
 
 /// A spec file, parsed, with its identity (file stem and SHA-256 of its text).
-pub fn read_spec(path: &Path) -> anyhow::Result<(Spec, SpecIdentity)> {
+pub fn read_spec(path: &Path) -> anyhow::Result<(ValidSpec, SpecIdentity)> {
     let text = std::fs::read_to_string(path)
         .with_context(|| format!("cannot read spec file {}", path.display()))?;
     let spec = Spec::from_toml_str(&text).with_context(|| {
@@ -43,7 +43,7 @@ pub fn read_spec(path: &Path) -> anyhow::Result<(Spec, SpecIdentity)> {
 
 /// Every system of a spec, simulated; stops with [`Cancelled`] after the simulation when
 /// the observer asks for it.
-pub fn simulate_spec(spec: &Spec, observer: &dyn Observer) -> anyhow::Result<Vec<System>> {
+pub fn simulate_spec(spec: &ValidSpec, observer: &dyn Observer) -> anyhow::Result<Vec<System>> {
     observer.begin("simulating", spec.total_count() as u64);
     let done = std::sync::atomic::AtomicUsize::new(0);
     let systems = training_sim::simulate_with_progress(spec, &|_| {
@@ -74,7 +74,7 @@ pub fn write_simulation(out: &OutputDir, spec: &Spec, systems: &[System]) -> any
 
 /// Simulate a spec and run every system through the labelling pipeline.
 pub fn analysed(
-    spec: &Spec,
+    spec: &ValidSpec,
     settings: &AnalysisSettings,
     observer: &dyn Observer,
 ) -> anyhow::Result<(Vec<AnalysedSystem>, Vec<SkippedSystem>)> {
@@ -133,7 +133,7 @@ pub fn train(
 #[allow(clippy::too_many_arguments)]
 pub fn train_spec(
     spec_path: &Path,
-    spec: &Spec,
+    spec: &ValidSpec,
     identity: SpecIdentity,
     suite: Option<&Path>,
     engine: &EngineSettings,
