@@ -3,7 +3,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use crate::fit::HeadModel;
+use crate::heads::HeadModel;
 use crate::logistic::MultinomialModel;
 use crate::verdict::VerdictPolicy;
 use crate::{Head, ModelCard, ModelError, Prediction, SpecIdentity};
@@ -158,8 +158,8 @@ impl ModelBundle {
 mod checks {
     use crate::ModelError;
     use crate::calibrate::Calibrator;
-    use crate::fit::{HeadModel, Scorer};
     use crate::forest::BaggedTree;
+    use crate::heads::{HeadModel, Scorer};
 
     pub(super) fn bad(part: impl Into<String>, reason: impl Into<String>) -> ModelError {
         ModelError::Inconsistent {

@@ -432,7 +432,7 @@ pub fn reliability_svg(bins: &[ReliabilityBin], title: &str) -> Result<String, M
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::fit::tests::small_bundle;
+    use crate::tests_support::small_bundle;
 
     #[test]
     fn card_renders_in_every_form() {

@@ -46,14 +46,19 @@ use serde::{Deserialize, Serialize};
 pub mod boost;
 mod bundle;
 pub mod calibrate;
+mod calibration_fit;
 pub mod card;
 mod error;
 pub mod fit;
+mod fit_config;
+mod folds;
 pub mod forest;
+mod heads;
 pub mod logistic;
 pub mod metrics;
 pub mod model_file;
 pub mod ood;
+mod selection;
 pub mod standardise;
 pub mod verdict;
 
@@ -231,7 +236,14 @@ pub use bundle::{FineHead, ModelBundle};
 
 #[cfg(test)]
 pub(crate) mod tests_support {
-    //! Shared helpers for unit tests: the stored scikit-learn fixture.
+    //! Shared helpers for unit tests: the stored scikit-learn fixture and an invented training
+    //! set with a small bundle fitted on it.
+
+    use rand::RngExt;
+    use rand::SeedableRng;
+    use rand_chacha::ChaCha8Rng;
+
+    use crate::{FineLabel, FitConfig, ModelBundle, TrainingSet, fit};
 
     /// The fixture written by `tests/reference/classifier_sklearn.py`.
     pub fn fixture() -> serde_json::Value {
@@ -255,5 +267,54 @@ pub(crate) mod tests_support {
             .iter()
             .map(|x| x.as_f64().expect("number"))
             .collect()
+    }
+
+    /// Invented data for tests only: one strong and one weaker informative feature, a lag
+    /// feature that is sometimes unavailable, and a noise feature; families shift the means.
+    pub fn synthetic(seed: u64, families: usize, systems_per_family: usize) -> TrainingSet {
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
+        let mut set = TrainingSet {
+            feature_names: ["skill_gain", "convergence", "lag_peak", "noise"]
+                .map(String::from)
+                .to_vec(),
+            schema_hash: "test-schema-1".into(),
+            ..Default::default()
+        };
+        for f in 0..families {
+            let shift = 0.2 * f as f64;
+            for s in 0..systems_per_family {
+                for k in 0..8 {
+                    let label = FineLabel::ALL[k % 4];
+                    let c = if label.is_causal() { 1.0 } else { -1.0 };
+                    let g = |rng: &mut ChaCha8Rng| {
+                        // Sum of uniforms: roughly normal, sd about 0.5.
+                        (0..3).map(|_| rng.random::<f64>()).sum::<f64>() - 1.5
+                    };
+                    let a = c * 1.0 + shift + 1.4 * g(&mut rng);
+                    let b = c * 0.6 - shift + 1.4 * g(&mut rng);
+                    let lag = if rng.random::<f64>() < 0.15 {
+                        None
+                    } else {
+                        Some(c * 0.5 + 1.6 * g(&mut rng))
+                    };
+                    set.rows
+                        .push(vec![Some(a), Some(b), lag, Some(2.0 * g(&mut rng))]);
+                    set.labels.push(label);
+                    set.families.push(format!("fam{f}"));
+                    set.systems.push(format!("fam{f}-sys{s}"));
+                }
+            }
+        }
+        set
+    }
+
+    pub fn small_bundle(seed: u64) -> (ModelBundle, TrainingSet) {
+        let set = synthetic(11, 3, 5);
+        let cfg = FitConfig {
+            seed,
+            curve_only_names: vec!["skill_gain".into(), "convergence".into(), "noise".into()],
+            ..FitConfig::default()
+        };
+        (fit(&set, &cfg).unwrap(), set)
     }
 }

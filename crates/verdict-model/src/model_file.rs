@@ -266,7 +266,7 @@ pub fn payload_of(bytes: &[u8]) -> Option<&[u8]> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::fit::tests::small_bundle;
+    use crate::tests_support::small_bundle;
 
     #[test]
     fn round_trip_keeps_predictions_and_bytes() {
@@ -345,8 +345,8 @@ mod tests {
 
     #[test]
     fn tree_ensemble_bundle_round_trips_deterministically() {
-        use crate::fit::tests::synthetic;
         use crate::forest::ForestParams;
+        use crate::tests_support::synthetic;
         use crate::{Candidate, FitConfig, fit};
         let set = synthetic(2, 2, 4);
         let cfg = FitConfig {
@@ -359,7 +359,7 @@ mod tests {
             ..FitConfig::default()
         };
         let m = fit(&set, &cfg).unwrap();
-        assert!(matches!(m.full.scorer, crate::fit::Scorer::Forest(_)));
+        assert!(matches!(m.full.scorer, crate::heads::Scorer::Forest(_)));
         let bytes = m.to_bytes().unwrap();
         assert_eq!(bytes, fit(&set, &cfg).unwrap().to_bytes().unwrap());
         let back = ModelBundle::from_bytes(&bytes).unwrap();
@@ -389,9 +389,9 @@ mod crafted {
 
     use super::*;
     use crate::calibrate::Calibrator;
-    use crate::fit::Scorer;
-    use crate::fit::tests::{small_bundle, synthetic};
     use crate::forest::ForestParams;
+    use crate::heads::Scorer;
+    use crate::tests_support::{small_bundle, synthetic};
     use crate::{Candidate, FitConfig, fit};
 
     /// A scratch folder removed on drop (the crate has no temporary-file dependency).

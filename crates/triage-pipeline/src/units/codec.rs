@@ -1,25 +1,13 @@
-//! Work-unit files: one response manifold's ensembles saved losslessly, for shards and resume.
-//!
-//! A *unit store* is a directory holding `manifest.json` (what run the units belong to) and one
-//! `unit-NNNNN.json` per finished unit (NNNNN = the response's column index). The same layout
-//! serves a shard directory (`scan --shard I/N`) and a scan's `.checkpoint/`.
-//!
-//! Every manifest and unit file carries the SHA-256 of the input table, the SHA-256 of the
-//! run's settings (resolved settings and flags) and the SHA-256 of its own content, so a file
-//! from another run, a damaged file or an edited one is refused by name on resume and merge.
-//! A unit's shape (one ensemble per other variable, the manifest's library sizes, replicate
-//! count, lags and surrogate count) and its values (skills in [-1, 1] or NaN) are checked too.
-//!
-//! Floats are stored as strings in shortest round-trip form ([`series_io::format_f64`]) and read
-//! back with Rust's exact decimal parser, so a unit read from disk is bit-identical to the one
-//! computed (NaN and infinities included, which JSON numbers cannot carry).
+//! The file formats of a unit store: manifests, unit files, float encoding and checksums.
 
-use std::collections::BTreeMap;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 use crossmap_engine::PairEnsemble;
 use serde::{Deserialize, Serialize};
-use series_io::{JsonDocument, OutputDir, format_f64};
+use series_io::format_f64;
+
+use super::error::UnitsError;
+use super::shard::ShardSpec;
 
 /// Name of the manifest file inside a unit store.
 pub const MANIFEST_FILE: &str = "manifest.json";
@@ -27,172 +15,6 @@ pub const MANIFEST_FILE: &str = "manifest.json";
 pub const UNITS_FORMAT: &str = "ccm-triage-units";
 /// Version of the unit-store layout; readers refuse newer versions.
 pub const UNITS_VERSION: u32 = 3;
-
-/// Errors of unit stores and shard merging.
-#[derive(Debug, thiserror::Error)]
-#[non_exhaustive]
-pub enum UnitsError {
-    /// A file could not be read or written.
-    #[error("{path}: {source}")]
-    Io {
-        /// The file.
-        path: PathBuf,
-        /// Why.
-        #[source]
-        source: std::io::Error,
-    },
-    /// Writing through the output directory failed.
-    #[error(transparent)]
-    Output(#[from] series_io::OutputError),
-    /// A file is not a valid manifest or unit file.
-    #[error(
-        "{path}: not a valid unit file or manifest ({reason}); delete it and rerun the scan that made it"
-    )]
-    Malformed {
-        /// The file.
-        path: PathBuf,
-        /// What is wrong.
-        reason: String,
-    },
-    /// A store belongs to another input or other settings than expected.
-    #[error(
-        "{dir}: {what} from {expected}; these files are from another run: delete {dir} or use another output directory"
-    )]
-    Mismatch {
-        /// The unit store.
-        dir: PathBuf,
-        /// Which identity field differs.
-        what: String,
-        /// What it was compared with.
-        expected: String,
-    },
-    /// A shard directory was never finished.
-    #[error(
-        "{dir}: shard {index}/{count} is incomplete; rerun its `scan --shard {index}/{count}` command (it resumes) before merging"
-    )]
-    Incomplete {
-        /// The shard directory.
-        dir: PathBuf,
-        /// Its shard index (1-based).
-        index: usize,
-        /// Its shard count.
-        count: usize,
-    },
-    /// A unit is present in two shard directories.
-    #[error(
-        "response `{name}` (unit {unit}) is in both {first} and {second}; pass each shard directory once"
-    )]
-    Duplicate {
-        /// The unit (response column index).
-        unit: usize,
-        /// The response's name.
-        name: String,
-        /// One directory holding it.
-        first: PathBuf,
-        /// The other.
-        second: PathBuf,
-    },
-    /// Some units are in no shard directory.
-    #[error(
-        "no shard holds the responses {names}; add the missing shard directories (shards {shards} of {count})"
-    )]
-    Missing {
-        /// Missing response names, comma-separated.
-        names: String,
-        /// The shards (I/N numbering of the first manifest) that would hold them.
-        shards: String,
-        /// Shard count of the first manifest.
-        count: usize,
-    },
-    /// `--shard` text could not be parsed.
-    #[error("--shard `{0}`: give I/N with 1 <= I <= N, e.g. --shard 2/4")]
-    BadShard(String),
-    /// Merge was given no directories.
-    #[error("give at least one shard directory to merge")]
-    NoShards,
-    /// A shard directory given to merge belongs to another run than the first one.
-    #[error(
-        "{dir}: {what} from that of {first}; these shards come from different runs: give the shard directories of one run (same input, settings and shard count)"
-    )]
-    ForeignShard {
-        /// The shard directory.
-        dir: PathBuf,
-        /// Which identity field differs.
-        what: String,
-        /// The first shard directory.
-        first: PathBuf,
-    },
-    /// A folder given to merge is not a shard directory.
-    #[error("{dir}: not a shard directory ({why}); give the folders written by `scan --shard I/N`")]
-    NotAShard {
-        /// The folder.
-        dir: PathBuf,
-        /// What it is instead.
-        why: &'static str,
-    },
-    /// Shards of different shard counts were given to one merge.
-    #[error(
-        "{dir} is shard {index} of {count}, but {first} is a shard of {first_count}; every shard of one merge must come from the same --shard I/N count"
-    )]
-    ShardCount {
-        /// The odd shard directory.
-        dir: PathBuf,
-        /// Its index.
-        index: usize,
-        /// Its count.
-        count: usize,
-        /// The first shard directory.
-        first: PathBuf,
-        /// The first one's count.
-        first_count: usize,
-    },
-}
-
-/// Which part of the work a process does: shard `index` of `count` (1-based).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
-pub struct ShardSpec {
-    /// 1-based shard index.
-    pub index: usize,
-    /// Number of shards.
-    pub count: usize,
-}
-
-impl ShardSpec {
-    /// The whole job in one shard.
-    pub const WHOLE: ShardSpec = ShardSpec { index: 1, count: 1 };
-
-    /// Parse `I/N`.
-    pub fn parse(text: &str) -> Result<Self, UnitsError> {
-        let bad = || UnitsError::BadShard(text.to_string());
-        let (i, n) = text.split_once('/').ok_or_else(bad)?;
-        let index: usize = i.trim().parse().map_err(|_| bad())?;
-        let count: usize = n.trim().parse().map_err(|_| bad())?;
-        if index == 0 || index > count {
-            return Err(bad());
-        }
-        Ok(Self { index, count })
-    }
-
-    /// The units (response column indices) of this shard among `n_units`.
-    ///
-    /// Round-robin: unit `u` goes to shard `u mod N + 1`. Every unit costs about the same (one
-    /// manifold's neighbour tables and its `n - 1` drivers), so shard sizes differ by at most one
-    /// unit and so by at most one unit's time.
-    pub fn units(&self, n_units: usize) -> Vec<usize> {
-        (self.index - 1..n_units).step_by(self.count).collect()
-    }
-
-    /// The shard holding `unit`.
-    pub fn of_unit(unit: usize, count: usize) -> usize {
-        unit % count + 1
-    }
-}
-
-impl std::fmt::Display for ShardSpec {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "{}/{}", self.index, self.count)
-    }
-}
 
 /// What a unit store belongs to; written as `manifest.json`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -367,6 +189,15 @@ impl StoreManifest {
     }
 }
 
+/// `manifest` as stored: with the checksums of its settings and of its content.
+pub(super) fn seal_manifest(manifest: &StoreManifest) -> impl Serialize {
+    SealedManifest {
+        settings_sha256: manifest.settings_sha256(),
+        content_sha256: content_sha256(manifest),
+        manifest: manifest.clone(),
+    }
+}
+
 /// A manifest as stored: the manifest and its checksums.
 #[derive(Debug, Serialize, Deserialize)]
 struct SealedManifest {
@@ -381,123 +212,6 @@ fn content_sha256<T: Serialize>(value: &T) -> String {
 
 fn short(sha: &str) -> String {
     format!("sha256 {}…", &sha[..sha.len().min(12)])
-}
-
-/// A directory of unit files plus its manifest.
-#[derive(Debug, Clone)]
-pub struct UnitStore {
-    out: OutputDir,
-}
-
-impl UnitStore {
-    /// Open (creating if needed) the store in `dir`.
-    pub fn open(dir: impl AsRef<Path>) -> Result<Self, UnitsError> {
-        let out = OutputDir::create(dir)?;
-        Ok(Self { out })
-    }
-
-    /// Refuse, now and at every later write, to replace any of `inputs` (the files the run
-    /// reads) with a file of the store; `names` are the extra files the caller will write.
-    pub fn protect_inputs(self, inputs: &[&Path], names: &[&str]) -> Result<Self, UnitsError> {
-        let mut all = vec![MANIFEST_FILE];
-        all.extend_from_slice(names);
-        Ok(Self {
-            out: self.out.protect_inputs(inputs, &all)?,
-        })
-    }
-
-    /// The store's directory.
-    pub fn path(&self) -> &Path {
-        self.out.path()
-    }
-
-    /// The output directory (for extra files such as `embedding.csv`).
-    pub fn output(&self) -> &OutputDir {
-        &self.out
-    }
-
-    /// The manifest, when one has been written.
-    pub fn read_manifest(&self) -> Result<Option<StoreManifest>, UnitsError> {
-        let path = self.path().join(MANIFEST_FILE);
-        if !path.exists() {
-            return Ok(None);
-        }
-        read_manifest(&path).map(Some)
-    }
-
-    /// Write (replace) the manifest atomically.
-    pub fn write_manifest(&self, manifest: &StoreManifest) -> Result<(), UnitsError> {
-        let sealed = SealedManifest {
-            settings_sha256: manifest.settings_sha256(),
-            content_sha256: content_sha256(manifest),
-            manifest: manifest.clone(),
-        };
-        self.out.export(&JsonDocument {
-            name: MANIFEST_FILE.into(),
-            value: &sealed,
-        })?;
-        Ok(())
-    }
-
-    /// Prepare the store for `manifest`'s run: a fresh store gets the manifest; an existing one
-    /// must be the same run (else [`UnitsError::Mismatch`]). Leftover temporary files of killed
-    /// runs are removed. Returns the units already saved.
-    pub fn begin(
-        &self,
-        manifest: &StoreManifest,
-    ) -> Result<BTreeMap<usize, Vec<PairEnsemble>>, UnitsError> {
-        match self.read_manifest()? {
-            Some(found) => found.check_same_run(manifest, self.path(), true)?,
-            None => self.write_manifest(manifest)?,
-        }
-        self.out.remove_stale_partials()?;
-        let mut done = BTreeMap::new();
-        for &unit in &manifest.units {
-            let path = self.path().join(unit_file_name(unit));
-            if path.exists() {
-                let ensembles = read_unit(&path, unit, manifest)?;
-                done.insert(unit, ensembles);
-            }
-        }
-        Ok(done)
-    }
-
-    /// Save one finished unit of `manifest`'s run atomically.
-    pub fn save_unit(
-        &self,
-        unit: usize,
-        manifest: &StoreManifest,
-        ensembles: &[PairEnsemble],
-    ) -> Result<(), UnitsError> {
-        let body = UnitBody {
-            format: UNITS_FORMAT.into(),
-            version: UNITS_VERSION,
-            input_sha256: manifest.input.sha256.clone(),
-            settings_sha256: manifest.settings_sha256(),
-            response: unit,
-            response_name: manifest.input.variables[unit].clone(),
-            ensembles: ensembles.iter().map(StoredEnsemble::from).collect(),
-        };
-        let file = UnitFile {
-            content_sha256: content_sha256(&body),
-            body,
-        };
-        let bytes = serde_json::to_vec(&file).map_err(|e| UnitsError::Malformed {
-            path: self.path().join(unit_file_name(unit)),
-            reason: e.to_string(),
-        })?;
-        self.out.write_bytes(&unit_file_name(unit), &bytes)?;
-        Ok(())
-    }
-
-    /// Read one saved unit, checked against the manifest.
-    pub fn load_unit(
-        &self,
-        unit: usize,
-        manifest: &StoreManifest,
-    ) -> Result<Vec<PairEnsemble>, UnitsError> {
-        read_unit(&self.path().join(unit_file_name(unit)), unit, manifest)
-    }
 }
 
 /// File name of a unit.
@@ -554,7 +268,8 @@ pub fn read_manifest(path: &Path) -> Result<StoreManifest, UnitsError> {
     Ok(m)
 }
 
-fn read_unit(
+/// Read one unit file, checked against the manifest: checksums, identity, shape and values.
+pub(super) fn read_unit(
     path: &Path,
     unit: usize,
     manifest: &StoreManifest,
@@ -710,128 +425,6 @@ impl UnitShape {
     }
 }
 
-/// Where each unit of a merge comes from.
-#[derive(Debug, Clone, PartialEq)]
-pub struct MergePlan {
-    /// The first shard's manifest (all are the same run).
-    pub manifest: StoreManifest,
-    /// `sources[u]`: index (into the given directories) of the shard holding unit `u`
-    /// (unused for units outside `units`).
-    pub sources: Vec<usize>,
-    /// The units the run computes, ascending: every unit, or the manifolds its pair selection
-    /// needs.
-    pub units: Vec<usize>,
-}
-
-/// Check that shard stores belong together and hold every unit exactly once.
-pub fn plan_merge(dirs: &[PathBuf]) -> Result<MergePlan, UnitsError> {
-    let Some(first_dir) = dirs.first() else {
-        return Err(UnitsError::NoShards);
-    };
-    let mut manifests = Vec::with_capacity(dirs.len());
-    for dir in dirs {
-        let path = dir.join(MANIFEST_FILE);
-        if !path.is_file() {
-            let why = if !dir.is_dir() {
-                "no such folder"
-            } else if dir.join("run.json").is_file() {
-                "it is the folder of a finished scan; merge reads the folders of `scan --shard` runs"
-            } else {
-                "it holds no manifest.json"
-            };
-            return Err(UnitsError::NotAShard {
-                dir: dir.clone(),
-                why,
-            });
-        }
-        manifests.push(read_manifest(&path)?);
-    }
-    let first = manifests[0].clone();
-    let n = first.input.variables.len();
-    let mut sources: Vec<Option<usize>> = vec![None; n];
-    for (k, (dir, m)) in dirs.iter().zip(&manifests).enumerate() {
-        if m.shard.count != first.shard.count {
-            return Err(UnitsError::ShardCount {
-                dir: dir.clone(),
-                index: m.shard.index,
-                count: m.shard.count,
-                first: first_dir.clone(),
-                first_count: first.shard.count,
-            });
-        }
-        m.check_same_run(&first, dir, false).map_err(|e| match e {
-            UnitsError::Mismatch { dir, what, .. } => UnitsError::ForeignShard {
-                dir,
-                what,
-                first: first_dir.clone(),
-            },
-            other => other,
-        })?;
-        if !m.complete {
-            return Err(UnitsError::Incomplete {
-                dir: dir.clone(),
-                index: m.shard.index,
-                count: m.shard.count,
-            });
-        }
-        for &u in &m.units {
-            if let Some(j) = sources[u] {
-                return Err(UnitsError::Duplicate {
-                    unit: u,
-                    name: first.input.variables[u].clone(),
-                    first: dirs[j].clone(),
-                    second: dir.clone(),
-                });
-            }
-            sources[u] = Some(k);
-        }
-    }
-    let expected: Vec<usize> = first.manifolds.clone().unwrap_or_else(|| (0..n).collect());
-    let missing: Vec<usize> = expected
-        .iter()
-        .copied()
-        .filter(|&u| u < n && sources[u].is_none())
-        .collect();
-    if !missing.is_empty() {
-        let names: Vec<&str> = missing
-            .iter()
-            .map(|&u| first.input.variables[u].as_str())
-            .collect();
-        let mut shards: Vec<usize> = missing
-            .iter()
-            .map(|&u| ShardSpec::of_unit(u, first.shard.count))
-            .collect();
-        shards.dedup();
-        shards.sort_unstable();
-        shards.dedup();
-        let shards: Vec<String> = shards.iter().map(usize::to_string).collect();
-        return Err(UnitsError::Missing {
-            names: names.join(", "),
-            shards: shards.join(", "),
-            count: first.shard.count,
-        });
-    }
-    Ok(MergePlan {
-        manifest: first,
-        sources: sources.into_iter().map(|s| s.unwrap_or_default()).collect(),
-        units: expected,
-    })
-}
-
-/// Every unit of a checked merge, read from its shard directory, in unit order.
-pub fn load_merge(dirs: &[PathBuf], plan: &MergePlan) -> Result<Vec<PairEnsemble>, UnitsError> {
-    let mut all = Vec::new();
-    for &u in &plan.units {
-        let k = plan.sources[u];
-        all.extend(read_unit(
-            &dirs[k].join(unit_file_name(u)),
-            u,
-            &plan.manifest,
-        )?);
-    }
-    Ok(all)
-}
-
 /// A unit file: its content and the checksum of that content.
 #[derive(Debug, Serialize, Deserialize)]
 struct UnitFile {
@@ -914,8 +507,32 @@ impl StoredEnsemble {
     }
 }
 
+/// The bytes of unit `unit`'s file: its ensembles with the run's checksums, sealed.
+pub(super) fn encode_unit(
+    unit: usize,
+    manifest: &StoreManifest,
+    ensembles: &[PairEnsemble],
+) -> Result<Vec<u8>, serde_json::Error> {
+    let body = UnitBody {
+        format: UNITS_FORMAT.into(),
+        version: UNITS_VERSION,
+        input_sha256: manifest.input.sha256.clone(),
+        settings_sha256: manifest.settings_sha256(),
+        response: unit,
+        response_name: manifest.input.variables[unit].clone(),
+        ensembles: ensembles.iter().map(StoredEnsemble::from).collect(),
+    };
+    let file = UnitFile {
+        content_sha256: content_sha256(&body),
+        body,
+    };
+    serde_json::to_vec(&file)
+}
+
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
+    use std::path::PathBuf;
+
     use super::*;
 
     fn input() -> InputIdentity {
@@ -926,7 +543,7 @@ mod tests {
         }
     }
 
-    fn manifest(shard: ShardSpec) -> StoreManifest {
+    pub(crate) fn manifest(shard: ShardSpec) -> StoreManifest {
         StoreManifest {
             format: UNITS_FORMAT.into(),
             version: UNITS_VERSION,
@@ -964,30 +581,13 @@ mod tests {
     }
 
     #[test]
-    fn shard_units_round_robin_cover_once() {
-        let mut all: Vec<usize> = (1..=4)
-            .flat_map(|i| ShardSpec { index: i, count: 4 }.units(10))
-            .collect();
-        assert_eq!(ShardSpec { index: 2, count: 4 }.units(10), [1, 5, 9]);
-        all.sort_unstable();
-        assert_eq!(all, (0..10).collect::<Vec<_>>());
-        assert_eq!(
-            ShardSpec::parse("2/4").unwrap(),
-            ShardSpec { index: 2, count: 4 }
-        );
-        for bad in ["0/4", "5/4", "2", "a/b", "1/0"] {
-            assert!(ShardSpec::parse(bad).is_err(), "{bad}");
-        }
-    }
-
-    #[test]
     fn unit_round_trip_is_bit_exact() {
         let dir = tempfile::tempdir().unwrap();
-        let store = UnitStore::open(dir.path()).unwrap();
         let units = vec![ensemble(0, 1), ensemble(2, 1)];
         let m = manifest(ShardSpec::WHOLE);
-        store.save_unit(1, &m, &units).unwrap();
-        let back = store.load_unit(1, &m).unwrap();
+        let path = dir.path().join(unit_file_name(1));
+        std::fs::write(&path, encode_unit(1, &m, &units).unwrap()).unwrap();
+        let back = read_unit(&path, 1, &m).unwrap();
         assert_eq!(back.len(), 2);
         for (a, b) in units.iter().zip(&back) {
             assert_eq!(bits(a), bits(b));
@@ -1003,70 +603,13 @@ mod tests {
         )
         .unwrap();
         assert!(matches!(
-            store.load_unit(2, &m),
+            read_unit(&dir.path().join(unit_file_name(2)), 2, &m),
             Err(UnitsError::Malformed { .. })
         ));
     }
 
-    #[test]
-    fn begin_refuses_another_run() {
-        let dir = tempfile::tempdir().unwrap();
-        let store = UnitStore::open(dir.path()).unwrap();
-        let m = manifest(ShardSpec::WHOLE);
-        assert!(store.begin(&m).unwrap().is_empty());
-        let mut other = m.clone();
-        other.settings = serde_json::json!({"seed": 2});
-        let err = store.begin(&other).unwrap_err();
-        assert!(err.to_string().contains("analysis settings"), "{err}");
-        other = m.clone();
-        other.input.sha256 = "cd".repeat(32);
-        assert!(
-            store
-                .begin(&other)
-                .unwrap_err()
-                .to_string()
-                .contains("input checksum")
-        );
-    }
-
-    #[test]
-    fn merge_plan_checks_coverage() {
-        let root = tempfile::tempdir().unwrap();
-        let dirs: Vec<PathBuf> = (1..=2).map(|i| root.path().join(format!("s{i}"))).collect();
-        for (i, d) in dirs.iter().enumerate() {
-            let store = UnitStore::open(d).unwrap();
-            store
-                .write_manifest(&manifest(ShardSpec {
-                    index: i + 1,
-                    count: 2,
-                }))
-                .unwrap();
-        }
-        let plan = plan_merge(&dirs).unwrap();
-        assert_eq!(plan.sources, [0, 1, 0]);
-        let err = plan_merge(&dirs[..1]).unwrap_err();
-        assert!(matches!(err, UnitsError::Missing { .. }), "{err}");
-        assert!(err.to_string().contains("shards 2 of 2"), "{err}");
-        let twice = vec![dirs[0].clone(), dirs[0].clone(), dirs[1].clone()];
-        assert!(matches!(
-            plan_merge(&twice),
-            Err(UnitsError::Duplicate { .. })
-        ));
-        let mut m = manifest(ShardSpec { index: 2, count: 2 });
-        m.complete = false;
-        UnitStore::open(&dirs[1])
-            .unwrap()
-            .write_manifest(&m)
-            .unwrap();
-        assert!(matches!(
-            plan_merge(&dirs),
-            Err(UnitsError::Incomplete { .. })
-        ));
-        assert!(matches!(plan_merge(&[]), Err(UnitsError::NoShards)));
-    }
-
     /// A manifest whose settings fix the shape of every unit, as a real scan's do.
-    fn shaped_manifest() -> StoreManifest {
+    pub(crate) fn shaped_manifest() -> StoreManifest {
         let mut m = manifest(ShardSpec::WHOLE);
         let plan = serde_json::json!({"library_sizes": [10, 20], "max_lag": 1});
         m.settings = serde_json::json!({
@@ -1075,14 +618,15 @@ mod tests {
         m
     }
 
-    fn saved_unit(dir: &Path, m: &StoreManifest) -> (UnitStore, PathBuf) {
-        let store = UnitStore::open(dir).unwrap();
+    /// Unit 1 of `m` written into `dir` as the store writes it; returns the file's path.
+    fn saved_unit(dir: &Path, m: &StoreManifest) -> PathBuf {
         let mut a = ensemble(0, 1);
         a.seasonal_surrogate_skills.pop();
         let mut b = ensemble(2, 1);
         b.seasonal_surrogate_skills.pop();
-        store.save_unit(1, m, &[a, b]).unwrap();
-        (store, dir.join(unit_file_name(1)))
+        let path = dir.join(unit_file_name(1));
+        std::fs::write(&path, encode_unit(1, m, &[a, b]).unwrap()).unwrap();
+        path
     }
 
     /// Rewrite a unit file through `edit` on its JSON; with `reseal`, recompute its content
@@ -1098,8 +642,8 @@ mod tests {
         std::fs::write(path, serde_json::to_vec(&v).unwrap()).unwrap();
     }
 
-    fn refusal(store: &UnitStore, m: &StoreManifest) -> String {
-        let err = store.load_unit(1, m).unwrap_err();
+    fn refusal(path: &Path, m: &StoreManifest) -> String {
+        let err = read_unit(path, 1, m).unwrap_err();
         assert!(matches!(err, UnitsError::Malformed { .. }), "{err}");
         let text = err.to_string();
         assert!(text.contains("unit-00001.json"), "{text}");
@@ -1110,8 +654,8 @@ mod tests {
     fn damaged_or_forged_units_are_refused_by_name() {
         let dir = tempfile::tempdir().unwrap();
         let m = shaped_manifest();
-        let (store, path) = saved_unit(dir.path(), &m);
-        assert_eq!(store.load_unit(1, &m).unwrap().len(), 2);
+        let path = saved_unit(dir.path(), &m);
+        assert_eq!(read_unit(&path, 1, &m).unwrap().len(), 2);
         let original = std::fs::read(&path).unwrap();
         let restore = || std::fs::write(&path, &original).unwrap();
 
@@ -1119,38 +663,38 @@ mod tests {
         edit_unit(&path, false, |b| {
             b["ensembles"].as_array_mut().unwrap().pop();
         });
-        assert!(refusal(&store, &m).contains("content checksum"));
+        assert!(refusal(&path, &m).contains("content checksum"));
         edit_unit(&path, true, |_| {});
         restore();
         edit_unit(&path, true, |b| {
             b["ensembles"].as_array_mut().unwrap().pop();
         });
-        assert!(refusal(&store, &m).contains("holds 1 pairs"));
+        assert!(refusal(&path, &m).contains("holds 1 pairs"));
         restore();
         edit_unit(&path, true, |b| {
             b["ensembles"][0]["skills"][0][0] = "9.18".into()
         });
-        assert!(refusal(&store, &m).contains("skill 9.18 at library size 10 is outside [-1, 1]"));
+        assert!(refusal(&path, &m).contains("skill 9.18 at library size 10 is outside [-1, 1]"));
         restore();
         edit_unit(&path, true, |b| {
             b["ensembles"][1]["skills"][1] = serde_json::json!(["0.5"])
         });
-        assert!(refusal(&store, &m).contains("1 replicates at library size 20"));
+        assert!(refusal(&path, &m).contains("1 replicates at library size 20"));
         restore();
         edit_unit(&path, true, |b| {
             b["ensembles"][1]["library_sizes"] = serde_json::json!([10, 99])
         });
-        assert!(refusal(&store, &m).contains("library sizes [10, 99]"));
+        assert!(refusal(&path, &m).contains("library sizes [10, 99]"));
         restore();
         edit_unit(&path, true, |b| b["ensembles"][1]["driver"] = 0.into());
-        assert!(refusal(&store, &m).contains("appears twice"));
+        assert!(refusal(&path, &m).contains("appears twice"));
         restore();
         edit_unit(&path, true, |b| {
             b["ensembles"][0]["lag_skills"][0] = "inf".into()
         });
-        assert!(refusal(&store, &m).contains("lag skill inf"));
+        assert!(refusal(&path, &m).contains("lag skill inf"));
         restore();
-        assert_eq!(store.load_unit(1, &m).unwrap().len(), 2);
+        assert_eq!(read_unit(&path, 1, &m).unwrap().len(), 2);
 
         // A unit of another seed copied in: refused, though its input is the same.
         let mut other = m.clone();
@@ -1158,67 +702,6 @@ mod tests {
         let elsewhere = tempfile::tempdir().unwrap();
         saved_unit(elsewhere.path(), &other);
         std::fs::copy(elsewhere.path().join(unit_file_name(1)), &path).unwrap();
-        assert!(refusal(&store, &m).contains("other settings"));
-    }
-
-    #[test]
-    fn manifests_carry_their_checksums_and_name_what_differs() {
-        let dir = tempfile::tempdir().unwrap();
-        let store = UnitStore::open(dir.path()).unwrap();
-        let m = shaped_manifest();
-        store.write_manifest(&m).unwrap();
-        assert_eq!(store.read_manifest().unwrap().unwrap(), m);
-        let path = dir.path().join(MANIFEST_FILE);
-        let mut v: serde_json::Value =
-            serde_json::from_slice(&std::fs::read(&path).unwrap()).unwrap();
-        v["manifest"]["settings"]["replicates"] = 3.into();
-        std::fs::write(&path, serde_json::to_vec(&v).unwrap()).unwrap();
-        let err = store.read_manifest().unwrap_err().to_string();
-        assert!(
-            err.contains("manifest.json") && err.contains("content checksum"),
-            "{err}"
-        );
-        store.write_manifest(&m).unwrap();
-        let mut other = m.clone();
-        other.settings["seed"] = 3.into();
-        let err = store.begin(&other).unwrap_err().to_string();
-        assert!(
-            err.contains("the analysis settings differ (seed: 1 in the files, 3 here)"),
-            "{err}"
-        );
-    }
-
-    #[test]
-    fn merge_names_a_scan_folder_and_a_different_shard_count() {
-        let root = tempfile::tempdir().unwrap();
-        let scan = root.path().join("scan");
-        std::fs::create_dir(&scan).unwrap();
-        std::fs::write(scan.join("run.json"), "{}").unwrap();
-        let err = plan_merge(&[scan]).unwrap_err().to_string();
-        assert!(err.contains("finished scan"), "{err}");
-        assert!(!err.contains("delete"), "{err}");
-        let a = root.path().join("a");
-        let b = root.path().join("b");
-        UnitStore::open(&a)
-            .unwrap()
-            .write_manifest(&manifest(ShardSpec { index: 1, count: 2 }))
-            .unwrap();
-        UnitStore::open(&b)
-            .unwrap()
-            .write_manifest(&manifest(ShardSpec { index: 2, count: 3 }))
-            .unwrap();
-        let err = plan_merge(&[a, b]).unwrap_err();
-        assert!(
-            matches!(
-                err,
-                UnitsError::ShardCount {
-                    count: 3,
-                    first_count: 2,
-                    ..
-                }
-            ),
-            "{err}"
-        );
-        assert!(!err.to_string().contains("delete"), "{err}");
+        assert!(refusal(&path, &m).contains("other settings"));
     }
 }
