@@ -1,6 +1,6 @@
 //! Assembles one schema-ordered feature row from a pair's evidence.
 
-use crate::schema::{FeatureGroup, index_of, schema};
+use crate::schema::{Feature as F, FeatureGroup, schema};
 use crate::shape::{CurveShape, curve_shape};
 use crate::stats::{finite, mean, sd};
 use crate::{FeatureError, LagProfile, PairContext, PairEvidence, SeasonalEvidence};
@@ -67,9 +67,8 @@ pub fn try_compute(evidence: &PairEvidence) -> Result<Vec<Option<f64>>, FeatureE
 struct Row(Vec<Option<f64>>);
 
 impl Row {
-    fn set(&mut self, name: &str, value: Option<f64>) {
-        let i = index_of(name).unwrap_or_else(|| panic!("feature {name} is not in the schema"));
-        self.0[i] = value.filter(|v| v.is_finite());
+    fn set(&mut self, feature: F, value: Option<f64>) {
+        self.0[feature.index()] = value.filter(|v| v.is_finite());
     }
 }
 
@@ -91,7 +90,7 @@ pub fn compute(evidence: &PairEvidence) -> Vec<Option<f64>> {
         set_lag(&mut row, lag, evidence.reverse_lag.as_ref());
     }
     if let Some(surr) = &evidence.surrogate_skills {
-        set_surrogate(&mut row, "surrogate", fwd.final_mean, surr);
+        set_surrogate(&mut row, &PHASE, fwd.final_mean, surr);
     }
     if let Some(seasonal) = &evidence.seasonal {
         set_seasonal(&mut row, fwd.final_mean, seasonal);
@@ -104,33 +103,33 @@ pub fn compute(evidence: &PairEvidence) -> Vec<Option<f64>> {
 
 fn set_curve(row: &mut Row, s: &CurveShape) {
     let asym = s.fit_asymptote();
-    row.set("skill_final_mean", s.final_mean);
-    row.set("skill_final_median", s.final_median);
-    row.set("fit_asymptote", asym);
-    row.set("fit_headroom", asym.zip(s.final_mean).map(|(a, m)| a - m));
-    row.set("fit_r2", s.fit.and_then(|f| f.r_squared));
-    row.set("fit_rmse", s.fit.map(|f| f.rmse));
-    row.set("skill_gain", s.gain);
-    row.set("slope_early", s.slope_early);
-    row.set("slope_late", s.slope_late);
-    row.set("fit_log10_rate", s.fit_log10_rate());
-    row.set("overshoot", s.overshoot);
-    row.set("overshoot_position", s.overshoot_position);
-    row.set("spread_sd_small", s.sd_small);
-    row.set("spread_sd_mid", s.sd_mid);
-    row.set("spread_sd_large", s.sd_large);
-    row.set("spread_iqr_small", s.iqr_small);
-    row.set("spread_iqr_mid", s.iqr_mid);
-    row.set("spread_iqr_large", s.iqr_large);
-    row.set("spread_log_ratio", s.spread_log_ratio);
-    row.set("spread_decay_slope", s.spread_decay_slope);
-    row.set("gain_over_spread", s.gain_over_spread);
-    row.set("mk_z", s.mk_z);
-    row.set("kendall_tau", s.kendall_tau);
-    row.set("rising_share", s.rising_share);
-    row.set("nan_share", s.nan_share);
-    row.set("log10_size_max", s.log10_size_max);
-    row.set("log10_size_span", s.log10_size_span);
+    row.set(F::SkillFinalMean, s.final_mean);
+    row.set(F::SkillFinalMedian, s.final_median);
+    row.set(F::FitAsymptote, asym);
+    row.set(F::FitHeadroom, asym.zip(s.final_mean).map(|(a, m)| a - m));
+    row.set(F::FitR2, s.fit.and_then(|f| f.r_squared));
+    row.set(F::FitRmse, s.fit.map(|f| f.rmse));
+    row.set(F::SkillGain, s.gain);
+    row.set(F::SlopeEarly, s.slope_early);
+    row.set(F::SlopeLate, s.slope_late);
+    row.set(F::FitLog10Rate, s.fit_log10_rate());
+    row.set(F::Overshoot, s.overshoot);
+    row.set(F::OvershootPosition, s.overshoot_position);
+    row.set(F::SpreadSdSmall, s.sd_small);
+    row.set(F::SpreadSdMid, s.sd_mid);
+    row.set(F::SpreadSdLarge, s.sd_large);
+    row.set(F::SpreadIqrSmall, s.iqr_small);
+    row.set(F::SpreadIqrMid, s.iqr_mid);
+    row.set(F::SpreadIqrLarge, s.iqr_large);
+    row.set(F::SpreadLogRatio, s.spread_log_ratio);
+    row.set(F::SpreadDecaySlope, s.spread_decay_slope);
+    row.set(F::GainOverSpread, s.gain_over_spread);
+    row.set(F::MkZ, s.mk_z);
+    row.set(F::KendallTau, s.kendall_tau);
+    row.set(F::RisingShare, s.rising_share);
+    row.set(F::NanShare, s.nan_share);
+    row.set(F::Log10SizeMax, s.log10_size_max);
+    row.set(F::Log10SizeSpan, s.log10_size_span);
 }
 
 fn diff(a: Option<f64>, b: Option<f64>) -> Option<f64> {
@@ -138,26 +137,26 @@ fn diff(a: Option<f64>, b: Option<f64>) -> Option<f64> {
 }
 
 fn set_contrast(row: &mut Row, f: &CurveShape, r: &CurveShape) {
-    row.set("rev_skill_final_mean", r.final_mean);
-    row.set("rev_skill_final_median", r.final_median);
-    row.set("rev_fit_asymptote", r.fit_asymptote());
-    row.set("rev_skill_gain", r.gain);
-    row.set("rev_slope_early", r.slope_early);
-    row.set("rev_slope_late", r.slope_late);
-    row.set("rev_fit_log10_rate", r.fit_log10_rate());
-    row.set("rev_kendall_tau", r.kendall_tau);
-    row.set("diff_skill_final_mean", diff(f.final_mean, r.final_mean));
+    row.set(F::RevSkillFinalMean, r.final_mean);
+    row.set(F::RevSkillFinalMedian, r.final_median);
+    row.set(F::RevFitAsymptote, r.fit_asymptote());
+    row.set(F::RevSkillGain, r.gain);
+    row.set(F::RevSlopeEarly, r.slope_early);
+    row.set(F::RevSlopeLate, r.slope_late);
+    row.set(F::RevFitLog10Rate, r.fit_log10_rate());
+    row.set(F::RevKendallTau, r.kendall_tau);
+    row.set(F::DiffSkillFinalMean, diff(f.final_mean, r.final_mean));
     row.set(
-        "diff_skill_final_median",
+        F::DiffSkillFinalMedian,
         diff(f.final_median, r.final_median),
     );
     row.set(
-        "diff_fit_asymptote",
+        F::DiffFitAsymptote,
         diff(f.fit_asymptote(), r.fit_asymptote()),
     );
-    row.set("diff_skill_gain", diff(f.gain, r.gain));
-    row.set("diff_slope_late", diff(f.slope_late, r.slope_late));
-    row.set("diff_kendall_tau", diff(f.kendall_tau, r.kendall_tau));
+    row.set(F::DiffSkillGain, diff(f.gain, r.gain));
+    row.set(F::DiffSlopeLate, diff(f.slope_late, r.slope_late));
+    row.set(F::DiffKendallTau, diff(f.kendall_tau, r.kendall_tau));
 }
 
 /// The best lag of a profile and what it implies.
@@ -202,25 +201,48 @@ fn set_lag(row: &mut Row, forward: &LagProfile, reverse: Option<&LagProfile>) {
     let Some(f) = best_lag(forward) else {
         return;
     };
-    row.set("lag_best", Some(f64::from(f.lag)));
-    row.set("lag_best_scaled", f.scaled);
-    row.set("lag_best_skill", Some(f.skill));
-    row.set("lag_gap", f.gap);
+    row.set(F::LagBest, Some(f64::from(f.lag)));
+    row.set(F::LagBestScaled, f.scaled);
+    row.set(F::LagBestSkill, Some(f.skill));
+    row.set(F::LagGap, f.gap);
     if let Some(r) = reverse.and_then(best_lag) {
-        row.set("rev_lag_best_scaled", r.scaled);
-        row.set("rev_lag_gap", r.gap);
-        row.set("diff_lag_best_scaled", diff(f.scaled, r.scaled));
+        row.set(F::RevLagBestScaled, r.scaled);
+        row.set(F::RevLagGap, r.gap);
+        row.set(F::DiffLagBestScaled, diff(f.scaled, r.scaled));
     }
 }
 
-/// `<prefix>_mean`, `_percentile`, `_p` and `_z` of a real skill against surrogate skills.
-fn set_surrogate(row: &mut Row, prefix: &str, real: Option<f64>, surrogates: &[f64]) {
+/// The four summaries of a real skill against one kind of surrogate skills.
+struct SurrogateColumns {
+    mean: F,
+    percentile: F,
+    p: F,
+    z: F,
+}
+
+/// The phase-randomised surrogates' columns.
+const PHASE: SurrogateColumns = SurrogateColumns {
+    mean: F::SurrogateMean,
+    percentile: F::SurrogatePercentile,
+    p: F::SurrogateP,
+    z: F::SurrogateZ,
+};
+
+/// The seasonal surrogates' columns.
+const SEASONAL: SurrogateColumns = SurrogateColumns {
+    mean: F::SeasonalMean,
+    percentile: F::SeasonalPercentile,
+    p: F::SeasonalP,
+    z: F::SeasonalZ,
+};
+
+/// The mean, percentile, p and z of a real skill against surrogate skills, into `cols`.
+fn set_surrogate(row: &mut Row, cols: &SurrogateColumns, real: Option<f64>, surrogates: &[f64]) {
     let s = finite(surrogates);
     if s.is_empty() {
         return;
     }
-    let name = |stat: &str| format!("{prefix}_{stat}");
-    row.set(&name("mean"), mean(&s));
+    row.set(cols.mean, mean(&s));
     let Some(real) = real else {
         return;
     };
@@ -228,10 +250,10 @@ fn set_surrogate(row: &mut Row, prefix: &str, real: Option<f64>, surrogates: &[f
     let below = s.iter().filter(|v| **v < real).count() as f64;
     let ties = s.iter().filter(|v| **v == real).count() as f64;
     let at_or_above = s.iter().filter(|v| **v >= real).count() as f64;
-    row.set(&name("percentile"), Some((below + 0.5 * ties) / n));
+    row.set(cols.percentile, Some((below + 0.5 * ties) / n));
     // Permutation p-value with the +1 correction, so it is never exactly zero (common
     // practice; Davison & Hinkley 1997, section 4.2, from memory).
-    row.set(&name("p"), Some((1.0 + at_or_above) / (1.0 + n)));
+    row.set(cols.p, Some((1.0 + at_or_above) / (1.0 + n)));
     let z = match (mean(&s), sd(&s)) {
         (Some(m), Some(sdv)) if sdv > 0.0 => Some(((real - m) / sdv).clamp(-Z_CLAMP, Z_CLAMP)),
         (Some(m), Some(_)) => Some(if real == m {
@@ -241,65 +263,65 @@ fn set_surrogate(row: &mut Row, prefix: &str, real: Option<f64>, surrogates: &[f
         }),
         _ => None,
     };
-    row.set(&name("z"), z);
+    row.set(cols.z, z);
 }
 
 /// Clamp of the period mismatch: beyond a factor of e^3 (about 20) rhythms are simply unrelated.
 const PERIOD_MISMATCH_CLAMP: f64 = 3.0;
 
 fn set_seasonal(row: &mut Row, real: Option<f64>, s: &SeasonalEvidence) {
-    set_surrogate(row, "seasonal", real, &s.skills);
+    set_surrogate(row, &SEASONAL, real, &s.skills);
     row.set(
-        "seasonal_gap",
+        F::SeasonalGap,
         real.zip(mean(&finite(&s.skills))).map(|(r, m)| r - m),
     );
-    row.set("cycle_strength_driver", Some(s.driver.strength));
-    row.set("cycle_strength_response", Some(s.response.strength));
+    row.set(F::CycleStrengthDriver, Some(s.driver.strength));
+    row.set(F::CycleStrengthResponse, Some(s.response.strength));
     let ratio = s.driver.period / s.response.period;
     row.set(
-        "cycle_period_mismatch",
+        F::CyclePeriodMismatch,
         (ratio > 0.0).then(|| ratio.ln().abs().min(PERIOD_MISMATCH_CLAMP)),
     );
 }
 
 fn set_context(row: &mut Row, real: Option<f64>, c: &PairContext) {
     row.set(
-        "log10_n_points",
+        F::Log10NPoints,
         (c.n_points > 0).then(|| (c.n_points as f64).log10()),
     );
-    row.set("e_driver", Some(c.e_driver as f64));
-    row.set("e_response", Some(c.e_response as f64));
-    row.set("tau_driver", Some(c.tau_driver as f64));
-    row.set("tau_response", Some(c.tau_response as f64));
-    row.set("simplex_driver", Some(c.simplex_driver));
-    row.set("simplex_response", Some(c.simplex_response));
+    row.set(F::EDriver, Some(c.e_driver as f64));
+    row.set(F::EResponse, Some(c.e_response as f64));
+    row.set(F::TauDriver, Some(c.tau_driver as f64));
+    row.set(F::TauResponse, Some(c.tau_response as f64));
+    row.set(F::SimplexDriver, Some(c.simplex_driver));
+    row.set(F::SimplexResponse, Some(c.simplex_response));
     let corr = c.correlation.is_finite().then_some(c.correlation);
-    row.set("correlation", corr);
-    row.set("abs_correlation", corr.map(f64::abs));
+    row.set(F::Correlation, corr);
+    row.set(F::AbsCorrelation, corr.map(f64::abs));
     let ratio = |simplex: f64| {
         real.filter(|_| simplex.is_finite())
             .map(|r| (r / simplex.max(SIMPLEX_FLOOR)).clamp(-RATIO_CLAMP, RATIO_CLAMP))
     };
-    row.set("skill_over_simplex_driver", ratio(c.simplex_driver));
-    row.set("skill_over_simplex_response", ratio(c.simplex_response));
+    row.set(F::SkillOverSimplexDriver, ratio(c.simplex_driver));
+    row.set(F::SkillOverSimplexResponse, ratio(c.simplex_response));
     row.set(
-        "skill_minus_abs_correlation",
+        F::SkillMinusAbsCorrelation,
         real.zip(corr).map(|(r, c)| r - c.abs()),
     );
     let common = c
         .common_driver_skill
         .is_finite()
         .then_some(c.common_driver_skill);
-    row.set("common_driver_skill", common);
-    row.set("common_driver_margin", diff(real, common));
+    row.set(F::CommonDriverSkill, common);
+    row.set(F::CommonDriverMargin, diff(real, common));
     let rank = c.response_skill_rank;
-    row.set("response_skill_rank", rank.is_finite().then_some(rank));
+    row.set(F::ResponseSkillRank, rank.is_finite().then_some(rank));
     let mean_in = c
         .response_mean_skill
         .is_finite()
         .then_some(c.response_mean_skill);
-    row.set("response_mean_skill", mean_in);
-    row.set("skill_minus_response_mean", diff(real, mean_in));
+    row.set(F::ResponseMeanSkill, mean_in);
+    row.set(F::SkillMinusResponseMean, diff(real, mean_in));
 }
 
 #[cfg(test)]
@@ -320,7 +342,7 @@ mod tests {
     }
 
     fn get(row: &[Option<f64>], name: &str) -> Option<f64> {
-        row[index_of(name).unwrap()]
+        row[crate::schema::index_of(name).unwrap()]
     }
 
     #[test]

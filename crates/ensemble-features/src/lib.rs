@@ -41,8 +41,8 @@ pub mod trend;
 pub use assemble::{available_groups, compute, try_compute};
 pub use error::FeatureError;
 pub use schema::{
-    FeatureDef, FeatureGroup, SCHEMA_VERSION, curve_only_indices, curve_only_names, index_of,
-    names, names_in_groups, schema, schema_hash, schema_markdown,
+    Feature, FeatureDef, FeatureGroup, SCHEMA_VERSION, curve_only_indices, curve_only_names,
+    index_of, names, names_in_groups, schema, schema_hash, schema_markdown,
 };
 
 /// Cross-map skills for one ordered pair: `skills[i][r]` is replicate `r` at `library_sizes[i]`.

@@ -565,6 +565,184 @@ pub fn names() -> Vec<&'static str> {
     SCHEMA.iter().map(|d| d.name).collect()
 }
 
+/// Every feature as a name the compiler checks, in schema (column) order: `Feature::X as
+/// usize` is its column. [`Feature::name`] reads the name from the schema, and a test checks
+/// that each variant is its name in CamelCase, so a typo or a reordering cannot pass.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
+#[allow(missing_docs)] // Each variant is its schema entry; see docs/features.md.
+pub enum Feature {
+    SkillFinalMean,
+    SkillFinalMedian,
+    FitAsymptote,
+    FitHeadroom,
+    FitR2,
+    FitRmse,
+    SkillGain,
+    SlopeEarly,
+    SlopeLate,
+    FitLog10Rate,
+    Overshoot,
+    OvershootPosition,
+    SpreadSdSmall,
+    SpreadSdMid,
+    SpreadSdLarge,
+    SpreadIqrSmall,
+    SpreadIqrMid,
+    SpreadIqrLarge,
+    SpreadLogRatio,
+    SpreadDecaySlope,
+    GainOverSpread,
+    MkZ,
+    KendallTau,
+    RisingShare,
+    NanShare,
+    Log10SizeMax,
+    Log10SizeSpan,
+    RevSkillFinalMean,
+    RevSkillFinalMedian,
+    RevFitAsymptote,
+    RevSkillGain,
+    RevSlopeEarly,
+    RevSlopeLate,
+    RevFitLog10Rate,
+    RevKendallTau,
+    DiffSkillFinalMean,
+    DiffSkillFinalMedian,
+    DiffFitAsymptote,
+    DiffSkillGain,
+    DiffSlopeLate,
+    DiffKendallTau,
+    LagBest,
+    LagBestScaled,
+    LagBestSkill,
+    LagGap,
+    RevLagBestScaled,
+    RevLagGap,
+    DiffLagBestScaled,
+    SurrogatePercentile,
+    SurrogateZ,
+    SurrogateP,
+    SurrogateMean,
+    SeasonalPercentile,
+    SeasonalZ,
+    SeasonalP,
+    SeasonalMean,
+    SeasonalGap,
+    CycleStrengthDriver,
+    CycleStrengthResponse,
+    CyclePeriodMismatch,
+    Log10NPoints,
+    EDriver,
+    EResponse,
+    TauDriver,
+    TauResponse,
+    SimplexDriver,
+    SimplexResponse,
+    Correlation,
+    AbsCorrelation,
+    SkillOverSimplexDriver,
+    SkillOverSimplexResponse,
+    SkillMinusAbsCorrelation,
+    CommonDriverSkill,
+    CommonDriverMargin,
+    ResponseSkillRank,
+    ResponseMeanSkill,
+    SkillMinusResponseMean,
+}
+
+impl Feature {
+    /// Every feature, in column order.
+    pub const ALL: [Feature; 77] = [
+        Feature::SkillFinalMean,
+        Feature::SkillFinalMedian,
+        Feature::FitAsymptote,
+        Feature::FitHeadroom,
+        Feature::FitR2,
+        Feature::FitRmse,
+        Feature::SkillGain,
+        Feature::SlopeEarly,
+        Feature::SlopeLate,
+        Feature::FitLog10Rate,
+        Feature::Overshoot,
+        Feature::OvershootPosition,
+        Feature::SpreadSdSmall,
+        Feature::SpreadSdMid,
+        Feature::SpreadSdLarge,
+        Feature::SpreadIqrSmall,
+        Feature::SpreadIqrMid,
+        Feature::SpreadIqrLarge,
+        Feature::SpreadLogRatio,
+        Feature::SpreadDecaySlope,
+        Feature::GainOverSpread,
+        Feature::MkZ,
+        Feature::KendallTau,
+        Feature::RisingShare,
+        Feature::NanShare,
+        Feature::Log10SizeMax,
+        Feature::Log10SizeSpan,
+        Feature::RevSkillFinalMean,
+        Feature::RevSkillFinalMedian,
+        Feature::RevFitAsymptote,
+        Feature::RevSkillGain,
+        Feature::RevSlopeEarly,
+        Feature::RevSlopeLate,
+        Feature::RevFitLog10Rate,
+        Feature::RevKendallTau,
+        Feature::DiffSkillFinalMean,
+        Feature::DiffSkillFinalMedian,
+        Feature::DiffFitAsymptote,
+        Feature::DiffSkillGain,
+        Feature::DiffSlopeLate,
+        Feature::DiffKendallTau,
+        Feature::LagBest,
+        Feature::LagBestScaled,
+        Feature::LagBestSkill,
+        Feature::LagGap,
+        Feature::RevLagBestScaled,
+        Feature::RevLagGap,
+        Feature::DiffLagBestScaled,
+        Feature::SurrogatePercentile,
+        Feature::SurrogateZ,
+        Feature::SurrogateP,
+        Feature::SurrogateMean,
+        Feature::SeasonalPercentile,
+        Feature::SeasonalZ,
+        Feature::SeasonalP,
+        Feature::SeasonalMean,
+        Feature::SeasonalGap,
+        Feature::CycleStrengthDriver,
+        Feature::CycleStrengthResponse,
+        Feature::CyclePeriodMismatch,
+        Feature::Log10NPoints,
+        Feature::EDriver,
+        Feature::EResponse,
+        Feature::TauDriver,
+        Feature::TauResponse,
+        Feature::SimplexDriver,
+        Feature::SimplexResponse,
+        Feature::Correlation,
+        Feature::AbsCorrelation,
+        Feature::SkillOverSimplexDriver,
+        Feature::SkillOverSimplexResponse,
+        Feature::SkillMinusAbsCorrelation,
+        Feature::CommonDriverSkill,
+        Feature::CommonDriverMargin,
+        Feature::ResponseSkillRank,
+        Feature::ResponseMeanSkill,
+        Feature::SkillMinusResponseMean,
+    ];
+
+    /// The feature's column in a row.
+    pub fn index(self) -> usize {
+        self as usize
+    }
+
+    /// The feature's name in `features.csv`.
+    pub fn name(self) -> &'static str {
+        SCHEMA[self as usize].name
+    }
+}
+
 /// Position of a feature in the schema.
 pub fn index_of(name: &str) -> Option<usize> {
     SCHEMA.iter().position(|d| d.name == name)
@@ -757,5 +935,24 @@ mod tests {
             committed == text,
             "docs/features.md differs from the schema; rerun with UPDATE_DOCS=1 to regenerate it"
         );
+    }
+
+    #[test]
+    fn each_feature_variant_is_its_schema_name_in_camel_case() {
+        assert_eq!(Feature::ALL.len(), SCHEMA.len());
+        for (k, f) in Feature::ALL.iter().enumerate() {
+            assert_eq!(f.index(), k);
+            let camel: String = f
+                .name()
+                .split('_')
+                .map(|p| {
+                    let mut c = p.chars();
+                    c.next()
+                        .map(|h| h.to_ascii_uppercase().to_string() + c.as_str())
+                        .unwrap_or_default()
+                })
+                .collect();
+            assert_eq!(format!("{f:?}"), camel, "column {k}");
+        }
     }
 }

@@ -1,6 +1,7 @@
 //! Fill the report's view model from the pipeline's results.
 
 use crossmap_engine::Embedding;
+use ensemble_features::Feature;
 use review_report::{EmbeddingRow, PairView, ReportData, TableRow, VerdictKind};
 use verdict_model::Verdict;
 
@@ -9,49 +10,49 @@ use crate::{Judgement, PairRecord};
 /// Features shown beside each pair's plots, in this order: the feature's id and what the
 /// report calls it (plain language, with its unit). Skill is Pearson's rho between estimated
 /// and observed values.
-pub const KEY_FEATURES: [(&str, &str); 9] = [
+pub const KEY_FEATURES: [(Feature, &str); 9] = [
     (
-        "skill_final_mean",
+        Feature::SkillFinalMean,
         "skill at the largest library (rho, mean of replicates)",
     ),
     (
-        "skill_gain",
+        Feature::SkillGain,
         "rise in skill from the smallest to the largest library (rho)",
     ),
     (
-        "fit_asymptote",
+        Feature::FitAsymptote,
         "level the fitted skill curve approaches (rho)",
     ),
     (
-        "rev_skill_final_mean",
+        Feature::RevSkillFinalMean,
         "skill of the opposite direction at its largest library (rho)",
     ),
     (
-        "lag_best",
+        Feature::LagBest,
         "cross-map lag of the best skill (time steps; a driver is expected at 0 or below)",
     ),
     (
-        "surrogate_percentile",
+        Feature::SurrogatePercentile,
         "share of phase-randomised surrogate drivers the skill beats (0 to 1)",
     ),
     (
-        "simplex_response",
+        Feature::SimplexResponse,
         "how well the response forecasts itself, by simplex projection (rho)",
     ),
     (
-        "correlation",
+        Feature::Correlation,
         "plain correlation of the two series (Pearson r)",
     ),
     (
-        "spread_sd_mid",
+        Feature::SpreadSdMid,
         "spread of the replicates' skills at the middle library size (standard deviation of rho)",
     ),
 ];
 
 /// A spread of exactly zero says only that every replicate used the same library (the whole
 /// manifold), not that the skill is certain, so such values are left out of the report.
-fn shown(id: &str, value: Option<f64>) -> bool {
-    !(id.starts_with("spread_") && value == Some(0.0))
+fn shown(feature: Feature, value: Option<f64>) -> bool {
+    !(feature.name().starts_with("spread_") && value == Some(0.0))
 }
 
 /// What the report says about the run itself.
@@ -182,10 +183,6 @@ pub fn report_view(
     records: &[PairRecord],
     judgements: &[Judgement],
 ) -> ReportData {
-    let index: Vec<Option<usize>> = KEY_FEATURES
-        .iter()
-        .map(|(id, _)| ensemble_features::index_of(id))
-        .collect();
     let pairs = records
         .iter()
         .zip(judgements)
@@ -215,10 +212,10 @@ pub fn report_view(
             seasonal_surrogate_skills: rec.evidence.seasonal.as_ref().map(|s| s.skills.clone()),
             key_features: KEY_FEATURES
                 .iter()
-                .zip(&index)
-                .map(|((id, label), k)| (*id, label, k.and_then(|k| rec.features[k])))
-                .filter(|(id, _, v)| shown(id, *v))
-                .map(|(_, label, v)| (label.to_string(), v))
+                .map(|&(f, label)| (label, rec.features[f.index()]))
+                .zip(KEY_FEATURES)
+                .filter(|((_, v), (f, _))| shown(*f, *v))
+                .map(|((label, v), _)| (label.to_string(), v))
                 .collect(),
             decision: None,
             answer_key: None,
@@ -256,10 +253,10 @@ mod tests {
 
     #[test]
     fn a_spread_of_exactly_zero_is_left_out_but_other_zeros_are_kept() {
-        assert!(!shown("spread_sd_mid", Some(0.0)));
-        assert!(shown("spread_sd_mid", Some(0.02)));
-        assert!(shown("lag_best", Some(0.0)));
-        assert!(shown("skill_gain", None));
+        assert!(!shown(Feature::SpreadSdMid, Some(0.0)));
+        assert!(shown(Feature::SpreadSdMid, Some(0.02)));
+        assert!(shown(Feature::LagBest, Some(0.0)));
+        assert!(shown(Feature::SkillGain, None));
     }
 
     #[test]
@@ -272,9 +269,8 @@ mod tests {
     }
 
     #[test]
-    fn every_key_feature_is_in_the_schema() {
-        for (id, label) in KEY_FEATURES {
-            assert!(ensemble_features::index_of(id).is_some(), "{id}");
+    fn key_features_are_named_in_plain_language() {
+        for (_, label) in KEY_FEATURES {
             assert!(!label.contains('_'), "{label} should be plain language");
         }
     }
