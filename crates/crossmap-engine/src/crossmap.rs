@@ -7,7 +7,7 @@
 
 use crate::embed::{Embedding, Manifold};
 use crate::neighbours::{
-    ExactScan, Library, Neighbour, NeighbourIndex, SortedLists, prefer_walk, walk_depth,
+    ExactScan, Library, MULTI_MAX, Neighbour, NeighbourIndex, SortedLists, prefer_walk, walk_depth,
 };
 use crate::params::ValidParams;
 use crate::season::season_for;
@@ -183,9 +183,14 @@ impl Table {
         k: usize,
         s: &mut Scratch,
     ) {
-        let n = index.manifold().len();
         self.k = k;
         index.nearest_every(library, k, &mut s.rows, &mut self.full);
+        self.fill(index.manifold().len(), &s.rows);
+    }
+
+    /// Positions and weights from neighbour rows (`self.full` already set for them).
+    fn fill(&mut self, n: usize, rows: &[Neighbour]) {
+        let k = self.k;
         // Entries of positions that are not full are never read, so stale values may stay.
         self.pos.resize(n * k, 0);
         self.weight.resize(n * k, 0.0);
@@ -199,7 +204,7 @@ impl Table {
             if !self.full[q] {
                 continue;
             }
-            let row = &s.rows[q * k..(q + 1) * k];
+            let row = &rows[q * k..(q + 1) * k];
             let w = &mut self.weight[q * k..(q + 1) * k];
             weights_into(row, exp_neg1, w);
             for (slot, nb) in self.pos[q * k..(q + 1) * k].iter_mut().zip(row) {
@@ -389,6 +394,48 @@ impl Table {
     ) -> f64 {
         self.estimate(index, library, target, lag, s, None);
         s.pairs.r()
+    }
+}
+
+/// Buffers for one block of replicate tables built by one multi-library walk.
+#[derive(Default)]
+struct Multi {
+    tables: Vec<Table>,
+    rows: Vec<Vec<Neighbour>>,
+    full: Vec<Vec<bool>>,
+    masks: Vec<u64>,
+}
+
+impl Multi {
+    /// Lag-0 skills of every target for each library, one row per library: the same as
+    /// [`Table::rebuild`] then [`Table::skills_fused`] per library, bit for bit.
+    fn run(
+        &mut self,
+        lists: &SortedLists,
+        libs: &[Library],
+        k: usize,
+        columns: &[&[f64]],
+        tm: &TimeMajor,
+        s: &mut Scratch,
+    ) -> Vec<Vec<f64>> {
+        let nr = libs.len();
+        self.rows.resize_with(nr, Vec::new);
+        self.full.resize_with(nr, Vec::new);
+        self.tables.resize_with(nr, || Table::empty(k));
+        let refs: Vec<&Library> = libs.iter().collect();
+        lists.nearest_every_multi(&refs, k, &mut self.rows, &mut self.full, &mut self.masks);
+        let n = lists.manifold().len();
+        (0..nr)
+            .map(|r| {
+                let table = &mut self.tables[r];
+                table.k = k;
+                std::mem::swap(&mut table.full, &mut self.full[r]);
+                table.fill(n, &self.rows[r]);
+                let skills = table.skills_fused(lists, &libs[r], columns, tm, s);
+                std::mem::swap(&mut table.full, &mut self.full[r]);
+                skills
+            })
+            .collect()
     }
 }
 
@@ -615,23 +662,49 @@ pub fn cross_map_response(
     };
     let distinct_reps = |l: usize| if l >= n { 1 } else { raw.replicates };
 
-    // Every size but the largest: skill at lag 0 for each driver.
+    // Every size but the largest: skill at lag 0 for each driver. A unit is one replicate
+    // when scanning, and a block of up to MULTI_MAX replicates served by one walk per query
+    // when walking; `unit_skills` holds one row per (size, replicate) either way.
     let last = sizes.len() - 1;
-    let units: Vec<(usize, usize)> = (0..last)
-        .flat_map(|li| (0..distinct_reps(sizes[li])).map(move |r| (li, r)))
+    let units: Vec<(usize, usize, usize)> = (0..last)
+        .flat_map(|li| {
+            let reps = distinct_reps(sizes[li]);
+            let block = if lists.is_some() && prefer_walk(n, sizes[li], emb.e) {
+                reps.div_ceil(reps.div_ceil(MULTI_MAX))
+            } else {
+                1
+            };
+            (0..reps)
+                .step_by(block)
+                .map(move |r| (li, r, (r + block).min(reps)))
+        })
         .collect();
     let unit_skills: Vec<Vec<f64>> = units
         .par_iter()
         .map_init(
-            || (Scratch::default(), Table::empty(k)),
-            |(s, table), &(li, r)| {
+            || (Scratch::default(), Table::empty(k), Multi::default()),
+            |(s, table, multi), &(li, r0, r1)| {
                 let l = sizes[li];
-                let lib = draw_library(raw.seed, response, l, r, n);
-                let index = index_for(l);
-                table.rebuild(index, &lib, k, s);
-                table.skills_fused(index, &lib, &columns, &time_major, s)
+                match &lists {
+                    Some(lists) if prefer_walk(n, l, emb.e) => {
+                        let libs: Vec<Library> = (r0..r1)
+                            .map(|r| draw_library(raw.seed, response, l, r, n))
+                            .collect();
+                        multi.run(lists, &libs, k, &columns, &time_major, s)
+                    }
+                    _ => {
+                        let lib = draw_library(raw.seed, response, l, r0, n);
+                        table.rebuild(&scan, &lib, k, s);
+                        vec![table.skills_fused(&scan, &lib, &columns, &time_major, s)]
+                    }
+                }
             },
         )
+        .flatten()
+        .collect();
+    let unit_li: Vec<usize> = units
+        .iter()
+        .flat_map(|&(li, r0, r1)| std::iter::repeat_n(li, r1 - r0))
         .collect();
 
     // The largest size: tables kept for lags and surrogates.
@@ -734,7 +807,7 @@ pub fn cross_map_response(
                 let row: Vec<f64> = (0..raw.replicates)
                     .map(|r| unit_skills[cursor + if reps == 1 { 0 } else { r }][di])
                     .collect();
-                debug_assert!(units[cursor].0 == li);
+                debug_assert!(unit_li[cursor] == li);
                 cursor += reps;
                 skills.push(row);
             }
