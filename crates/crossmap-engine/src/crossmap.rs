@@ -48,12 +48,13 @@ pub fn simplex_weights(neighbours: &[Neighbour], out: &mut Vec<f64>) {
 fn weights_into(neighbours: &[Neighbour], exp_neg1: f64, out: &mut [f64]) {
     let d1 = neighbours[0].dist;
     if d1 > 0.0 {
+        // The ratios first (one loop of divisions, vectorised when the length is known), then
+        // the exponentials.
         for (w, n) in out.iter_mut().zip(neighbours) {
-            *w = if n.dist == d1 {
-                exp_neg1
-            } else {
-                (-n.dist / d1).exp()
-            };
+            *w = -n.dist / d1;
+        }
+        for (w, n) in out.iter_mut().zip(neighbours) {
+            *w = if n.dist == d1 { exp_neg1 } else { w.exp() };
         }
     } else {
         for (w, n) in out.iter_mut().zip(neighbours) {
@@ -190,7 +191,25 @@ impl Table {
 
     /// Positions and weights from neighbour rows (`self.full` already set for them).
     fn fill(&mut self, n: usize, rows: &[Neighbour]) {
-        let k = self.k;
+        match self.k {
+            2 => self.fill_k::<2>(n, rows),
+            3 => self.fill_k::<3>(n, rows),
+            4 => self.fill_k::<4>(n, rows),
+            5 => self.fill_k::<5>(n, rows),
+            6 => self.fill_k::<6>(n, rows),
+            7 => self.fill_k::<7>(n, rows),
+            8 => self.fill_k::<8>(n, rows),
+            9 => self.fill_k::<9>(n, rows),
+            _ => self.fill_k::<0>(n, rows),
+        }
+    }
+
+    /// [`Table::fill`] with `k` fixed at compile time (`K`; 0: read it from the table), so the
+    /// weight loops unroll and their divisions vectorise (each quotient is still one correctly
+    /// rounded division: bit-identical).
+    fn fill_k<const K: usize>(&mut self, n: usize, rows: &[Neighbour]) {
+        let k = if K == 0 { self.k } else { K };
+        debug_assert_eq!(k, self.k);
         // Entries of positions that are not full are never read, so stale values may stay.
         self.pos.resize(n * k, 0);
         self.weight.resize(n * k, 0.0);
@@ -200,14 +219,17 @@ impl Table {
         // exp(-d_i / d_1) is exactly exp(-1) whenever d_i == d_1 (always so for the first
         // neighbour): one call here instead of one per query, with identical bits.
         let exp_neg1 = std::hint::black_box(-1.0f64).exp();
-        for q in 0..n {
-            if !self.full[q] {
+        for (((row, w), pos), &full) in rows
+            .chunks_exact(k)
+            .zip(self.weight.chunks_exact_mut(k))
+            .zip(self.pos.chunks_exact_mut(k))
+            .zip(&self.full)
+        {
+            if !full {
                 continue;
             }
-            let row = &rows[q * k..(q + 1) * k];
-            let w = &mut self.weight[q * k..(q + 1) * k];
             weights_into(row, exp_neg1, w);
-            for (slot, nb) in self.pos[q * k..(q + 1) * k].iter_mut().zip(row) {
+            for (slot, nb) in pos.iter_mut().zip(row) {
                 *slot = nb.pos;
             }
         }
@@ -320,26 +342,60 @@ impl Table {
     /// [`FinitePairs`]' (bit-identical) while the loops run across targets. `None` when an
     /// estimate is not finite (then the general path decides).
     fn skills_fast(&self, m: &Manifold, tm: &TimeMajor, s: &mut Scratch) -> Option<Vec<f64>> {
-        let (k, dn) = (self.k, tm.count);
-        s.est_rows.clear();
-        s.row_times.clear();
-        for q in 0..m.len() {
-            if !self.full[q] {
-                continue;
-            }
-            let start = s.est_rows.len();
-            s.est_rows.resize(start + dn, 0.0);
-            let acc = &mut s.est_rows[start..];
-            for j in 0..k {
-                let w = self.weight[q * k + j];
-                let t = m.time(self.pos[q * k + j] as usize);
-                let row = &tm.vals[t * dn..(t + 1) * dn];
-                for (a, &v) in acc.iter_mut().zip(row) {
-                    *a += w * v;
-                }
-            }
-            s.row_times.push(m.time(q));
+        match tm.count {
+            1 => self.skills_fast_n::<1>(m, tm, s),
+            2 => self.skills_fast_n::<2>(m, tm, s),
+            3 => self.skills_fast_n::<3>(m, tm, s),
+            4 => self.skills_fast_n::<4>(m, tm, s),
+            5 => self.skills_fast_n::<5>(m, tm, s),
+            6 => self.skills_fast_n::<6>(m, tm, s),
+            7 => self.skills_fast_n::<7>(m, tm, s),
+            8 => self.skills_fast_n::<8>(m, tm, s),
+            SURROGATE_BLOCK => self.skills_fast_n::<SURROGATE_BLOCK>(m, tm, s),
+            _ => self.skills_fast_n::<0>(m, tm, s),
         }
+    }
+
+    /// [`Table::skills_fast`] with the number of targets fixed at compile time (`DN`; 0: read
+    /// it from `tm`), so the loops across targets unroll and vectorise for the common counts.
+    /// Each target's sums are the same additions in the same order for every `DN`.
+    fn skills_fast_n<const DN: usize>(
+        &self,
+        m: &Manifold,
+        tm: &TimeMajor,
+        s: &mut Scratch,
+    ) -> Option<Vec<f64>> {
+        let k = self.k;
+        let dn = if DN == 0 { tm.count } else { DN };
+        debug_assert_eq!(dn, tm.count);
+        let n = m.len();
+        s.est_rows.clear();
+        s.est_rows.resize(n * dn, 0.0);
+        s.row_times.clear();
+        let mut filled = 0;
+        if k > 0 {
+            for (q, ((ws, ps), _)) in self
+                .weight
+                .chunks_exact(k)
+                .zip(self.pos.chunks_exact(k))
+                .zip(&self.full)
+                .enumerate()
+                .take(n)
+                .filter(|(_, (_, full))| **full)
+            {
+                let acc = &mut s.est_rows[filled * dn..(filled + 1) * dn];
+                for (&w, &p) in ws.iter().zip(ps) {
+                    let t = m.time(p as usize);
+                    let row = &tm.vals[t * dn..(t + 1) * dn];
+                    for (a, &v) in acc.iter_mut().zip(row) {
+                        *a += w * v;
+                    }
+                }
+                s.row_times.push(m.time(q));
+                filled += 1;
+            }
+        }
+        s.est_rows.truncate(filled * dn);
         if !s.est_rows.iter().all(|v| v.is_finite()) {
             return None;
         }
@@ -352,6 +408,8 @@ impl Table {
             v.resize(dn, 0.0);
         }
         let [sa, sb, sxx, syy, sxy] = &mut s.sums;
+        let (sa, sb) = (&mut sa[..dn], &mut sb[..dn]);
+        let (sxx, syy, sxy) = (&mut sxx[..dn], &mut syy[..dn], &mut sxy[..dn]);
         for (est, &t) in s.est_rows.chunks_exact(dn).zip(&s.row_times) {
             let obs = &tm.vals[t * dn..(t + 1) * dn];
             for d in 0..dn {
