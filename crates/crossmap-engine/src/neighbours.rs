@@ -240,60 +240,6 @@ fn scan_into<A: Fn(usize) -> bool + ?Sized>(
 /// Largest k served by the fixed-size candidate lists of [`scan_every`].
 const K_MAX: usize = 16;
 
-/// The k best (squared distance, position) pairs seen so far, sorted; candidates arrive in
-/// increasing position, so a candidate only displaces strictly larger distances.
-struct Best {
-    d: [f64; K_MAX],
-    p: [u32; K_MAX],
-    cnt: usize,
-    k: usize,
-    /// The k-th best squared distance once `cnt == k`; +inf before.
-    worst: f64,
-}
-
-impl Best {
-    fn new(k: usize) -> Self {
-        debug_assert!(k > 0 && k <= K_MAX);
-        Self {
-            d: [0.0; K_MAX],
-            p: [0; K_MAX],
-            cnt: 0,
-            k,
-            worst: f64::INFINITY,
-        }
-    }
-
-    #[inline]
-    fn reset(&mut self) {
-        self.cnt = 0;
-        self.worst = f64::INFINITY;
-    }
-
-    #[inline(always)]
-    fn offer(&mut self, d2: f64, p: u32) {
-        // `d2 < worst` is the common test; `cnt < k` admits anything (even +inf) while filling.
-        if !(d2 < self.worst || self.cnt < self.k) {
-            return;
-        }
-        let mut at = if self.cnt < self.k {
-            self.cnt += 1;
-            self.cnt - 1
-        } else {
-            self.k - 1
-        };
-        while at > 0 && self.d[at - 1] > d2 {
-            self.d[at] = self.d[at - 1];
-            self.p[at] = self.p[at - 1];
-            at -= 1;
-        }
-        self.d[at] = d2;
-        self.p[at] = p;
-        if self.cnt == self.k {
-            self.worst = self.d[self.k - 1];
-        }
-    }
-}
-
 /// Every query against one library with the members' coordinates gathered contiguously. `E` is
 /// the embedding dimension fixed at compile time (0: read it from the manifold), so the distance
 /// loop unrolls for the common small dimensions.
@@ -304,7 +250,10 @@ impl Best {
 /// Candidates arrive in increasing position, so the (distance, position) rule reduces to strict
 /// `<` on the squared distance, and a full distance above the k-th best is rejected exactly as
 /// the early-abandoning scan rejects it: results equal [`scan_into`]'s bit for bit.
-fn scan_every<const E: usize>(
+///
+/// `K` fixes k at compile time the same way (0: the argument), so the insertion into the k
+/// best unrolls and its bound stays in a register.
+fn scan_every<const E: usize, const K: usize>(
     m: &Manifold,
     w: usize,
     library: &Library,
@@ -314,13 +263,17 @@ fn scan_every<const E: usize>(
 ) {
     let e = if E == 0 { m.e() } else { E };
     debug_assert_eq!(e, m.e());
+    let k = if K == 0 { k } else { K };
     let members = library.members();
     let times: Vec<usize> = members.iter().map(|&p| m.time(p as usize)).collect();
     let mut coords = Vec::with_capacity(members.len() * e);
     for &p in members {
         coords.extend_from_slice(m.point(p as usize));
     }
-    let mut best = Best::new(k);
+    debug_assert!(k > 0 && k <= K_MAX);
+    // The k best (squared distance, position) pairs so far, sorted; candidates arrive in
+    // increasing position, so a candidate only displaces strictly larger distances.
+    let (mut bd, mut bp) = ([0.0f64; K_MAX], [0u32; K_MAX]);
     let (mut lo, mut hi) = (0usize, 0usize);
     for q in 0..m.len() {
         let tq = m.time(q);
@@ -333,7 +286,9 @@ fn scan_every<const E: usize>(
             hi += 1;
         }
         let qp = m.point(q);
-        best.reset();
+        // `worst`: the k-th best once `cnt == k`, +inf before; while filling anything enters
+        // (even +inf).
+        let (mut cnt, mut worst) = (0usize, f64::INFINITY);
         for range in [0..lo, hi..members.len()] {
             let cs = &coords[range.start * e..range.end * e];
             for (c, &p) in cs.chunks_exact(e).zip(&members[range]) {
@@ -342,15 +297,30 @@ fn scan_every<const E: usize>(
                     let d = qp[j] - c[j];
                     d2 += d * d;
                 }
-                best.offer(d2, p);
+                if !(d2 < worst || cnt < k) {
+                    continue;
+                }
+                let mut at = if cnt < k {
+                    cnt += 1;
+                    cnt - 1
+                } else {
+                    k - 1
+                };
+                while at > 0 && bd[at - 1] > d2 {
+                    bd[at] = bd[at - 1];
+                    bp[at] = bp[at - 1];
+                    at -= 1;
+                }
+                bd[at] = d2;
+                bp[at] = p;
+                if cnt == k {
+                    worst = bd[k - 1];
+                }
             }
         }
-        full[q] = best.cnt == k;
+        full[q] = cnt == k;
         if full[q] {
-            for (slot, (&d2, &p)) in rows[q * k..(q + 1) * k]
-                .iter_mut()
-                .zip(best.d.iter().zip(&best.p))
-            {
+            for (slot, (&d2, &p)) in rows[q * k..(q + 1) * k].iter_mut().zip(bd.iter().zip(&bp)) {
                 *slot = Neighbour {
                     pos: p,
                     dist: d2.sqrt(),
@@ -368,14 +338,21 @@ fn scan_every_dispatch(
     rows: &mut [Neighbour],
     full: &mut [bool],
 ) {
-    match m.e() {
-        1 => scan_every::<1>(m, w, library, k, rows, full),
-        2 => scan_every::<2>(m, w, library, k, rows, full),
-        3 => scan_every::<3>(m, w, library, k, rows, full),
-        4 => scan_every::<4>(m, w, library, k, rows, full),
-        5 => scan_every::<5>(m, w, library, k, rows, full),
-        6 => scan_every::<6>(m, w, library, k, rows, full),
-        _ => scan_every::<0>(m, w, library, k, rows, full),
+    // k = E + 1 is the table-building case; other k (the tests) take the general form.
+    match (m.e(), k) {
+        (1, 2) => scan_every::<1, 2>(m, w, library, k, rows, full),
+        (2, 3) => scan_every::<2, 3>(m, w, library, k, rows, full),
+        (3, 4) => scan_every::<3, 4>(m, w, library, k, rows, full),
+        (4, 5) => scan_every::<4, 5>(m, w, library, k, rows, full),
+        (5, 6) => scan_every::<5, 6>(m, w, library, k, rows, full),
+        (6, 7) => scan_every::<6, 7>(m, w, library, k, rows, full),
+        (e, k) if e > 6 && k == e + 1 && k <= 11 => match k {
+            8 => scan_every::<0, 8>(m, w, library, k, rows, full),
+            9 => scan_every::<0, 9>(m, w, library, k, rows, full),
+            10 => scan_every::<0, 10>(m, w, library, k, rows, full),
+            _ => scan_every::<0, 11>(m, w, library, k, rows, full),
+        },
+        _ => scan_every::<0, 0>(m, w, library, k, rows, full),
     }
 }
 
@@ -801,12 +778,15 @@ fn tree_sorts(n: usize, depth: usize) -> bool {
 /// See [`tree_sorts`]: measured on the side-by-side benchmark's workloads.
 const TREE_SORT_RATIO: usize = 8;
 
-/// Walk or scan? The walk costs about `k N / L` cheap steps (a mask test), the scan `L`
-/// candidates at roughly three times a step's cost (distance, window test, insertion; measured
-/// with the criterion bench): walk when `3 L^2 > k N`.
+/// Walk or scan? The walk costs about `k N / L` cheap steps (a mask test; one walk serves a block
+/// of replicates), the scan `L` candidates whose cost grows with E (distance, window test,
+/// insertion into the k best): walk when `k L^2 > k N`, i.e. `L^2 > N`. Measured on the
+/// side-by-side benchmark's workloads (E = 2, 3, 5, 8; 20 and 100 replicates): walking from
+/// `c L^2 > k N` with `c = k` was as fast as or faster than any fixed `c` from 1 to 12 (the
+/// previous rule, `c = 3`, took up to 24 % more CPU at E = 5 and 8).
 pub fn prefer_walk(n: usize, l: usize, e: usize) -> bool {
     let k = e + 1;
-    3 * l * l > k * n
+    k * l * l > k * n
 }
 
 /// List depth for libraries of at least `l_min` members: twice the expected walk length `k N / L`,
