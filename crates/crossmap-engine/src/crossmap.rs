@@ -710,7 +710,8 @@ pub fn cross_map_response(
         .copied()
         .filter(|&l| prefer_walk(n, l, emb.e))
         .min();
-    let lists = walk_min.map(|l| SortedLists::new(&m, plan.theiler, walk_depth(n, l, emb.e)));
+    let lists = walk_min
+        .map(|l| SortedLists::new(&m, plan.theiler, walk_depth(n, l, emb.e, raw.replicates)));
     let scan = ExactScan::new(&m, plan.theiler);
     let index_for = |l: usize| -> &dyn NeighbourIndex {
         match &lists {

@@ -789,15 +789,18 @@ pub fn prefer_walk(n: usize, l: usize, e: usize) -> bool {
     k * l * l > k * n
 }
 
-/// List depth for libraries of at least `l_min` members: twice the expected walk length `k N / L`,
-/// plus slack. A list that runs dry falls back to a scan of the library (same result), which at
-/// these sizes costs a few walks' steps; deeper lists cost more to sort per manifold than the
-/// fallbacks they avoid. Measured on the side-by-side benchmark's workloads (E = 2, 3, 8; 1,000
-/// points; 20 and 100 replicates): `2 k N / L + 16` took 6-11 % less CPU than `4 k N / L + 32`,
-/// and `k N / L` lost at E = 8.
-pub fn walk_depth(n: usize, l_min: usize, e: usize) -> usize {
+/// List depth for libraries of at least `l_min` members and `replicates` random libraries per
+/// size: the expected walk length `k N / L` (up to 32 replicates and E up to 5) or twice it,
+/// plus slack. A list that runs dry falls back to a scan of the library (same result), which
+/// costs a few walks' steps, once per replicate and more at larger E; deeper lists cost more
+/// to sort, once per manifold. Measured on the side-by-side benchmark's workloads (alternated
+/// runs): with 20 replicates at E = 2, `k N / L + 16` took 12 % less CPU than `2 k N / L + 16`
+/// at 4,000 points and about the same at 500-1,000; at E = 8 it took 6 % more, and with 100
+/// replicates 10-20 % more. Both beat the earlier `4 k N / L + 32` by 6-11 % at 1,000 points.
+pub fn walk_depth(n: usize, l_min: usize, e: usize, replicates: usize) -> usize {
     let k = e + 1;
-    (2 * k * n).div_ceil(l_min.max(1)) + 16
+    let factor = if replicates <= 32 && e <= 5 { 1 } else { 2 };
+    (factor * k * n).div_ceil(l_min.max(1)) + 16
 }
 
 #[cfg(test)]
