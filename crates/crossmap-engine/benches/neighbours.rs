@@ -37,7 +37,7 @@ fn kernel(c: &mut Criterion) {
     for l in [5usize, 20, 60, 200, 998] {
         let lib = draw_library(1, 0, l, 0, n);
         let scan = ExactScan::new(&m, 2);
-        let lists = SortedLists::new(&m, 2, walk_depth(n, l, 3));
+        let lists = SortedLists::new(&m, 2, walk_depth(n, l, 3, 100));
         for (name, index) in [("scan", &scan as &dyn NeighbourIndex), ("walk", &lists)] {
             g.bench_with_input(BenchmarkId::new(name, l), &l, |b, _| {
                 let mut out = Vec::new();
@@ -52,7 +52,7 @@ fn kernel(c: &mut Criterion) {
     }
     g.finish();
     c.bench_function("sorted_lists_build_1000pts_E3", |b| {
-        b.iter(|| black_box(SortedLists::new(&m, 2, walk_depth(n, 20, 3))))
+        b.iter(|| black_box(SortedLists::new(&m, 2, walk_depth(n, 20, 3, 100))))
     });
 }
 

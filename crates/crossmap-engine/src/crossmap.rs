@@ -7,7 +7,7 @@
 
 use crate::embed::{Embedding, Manifold};
 use crate::neighbours::{
-    ExactScan, Library, Neighbour, NeighbourIndex, SortedLists, prefer_walk, walk_depth,
+    ExactScan, Library, MULTI_MAX, Neighbour, NeighbourIndex, SortedLists, prefer_walk, walk_depth,
 };
 use crate::params::ValidParams;
 use crate::season::season_for;
@@ -48,12 +48,13 @@ pub fn simplex_weights(neighbours: &[Neighbour], out: &mut Vec<f64>) {
 fn weights_into(neighbours: &[Neighbour], exp_neg1: f64, out: &mut [f64]) {
     let d1 = neighbours[0].dist;
     if d1 > 0.0 {
+        // The ratios first (one loop of divisions, vectorised when the length is known), then
+        // the exponentials.
         for (w, n) in out.iter_mut().zip(neighbours) {
-            *w = if n.dist == d1 {
-                exp_neg1
-            } else {
-                (-n.dist / d1).exp()
-            };
+            *w = -n.dist / d1;
+        }
+        for (w, n) in out.iter_mut().zip(neighbours) {
+            *w = if n.dist == d1 { exp_neg1 } else { w.exp() };
         }
     } else {
         for (w, n) in out.iter_mut().zip(neighbours) {
@@ -183,9 +184,32 @@ impl Table {
         k: usize,
         s: &mut Scratch,
     ) {
-        let n = index.manifold().len();
         self.k = k;
         index.nearest_every(library, k, &mut s.rows, &mut self.full);
+        self.fill(index.manifold().len(), &s.rows);
+    }
+
+    /// Positions and weights from neighbour rows (`self.full` already set for them).
+    fn fill(&mut self, n: usize, rows: &[Neighbour]) {
+        match self.k {
+            2 => self.fill_k::<2>(n, rows),
+            3 => self.fill_k::<3>(n, rows),
+            4 => self.fill_k::<4>(n, rows),
+            5 => self.fill_k::<5>(n, rows),
+            6 => self.fill_k::<6>(n, rows),
+            7 => self.fill_k::<7>(n, rows),
+            8 => self.fill_k::<8>(n, rows),
+            9 => self.fill_k::<9>(n, rows),
+            _ => self.fill_k::<0>(n, rows),
+        }
+    }
+
+    /// [`Table::fill`] with `k` fixed at compile time (`K`; 0: read it from the table), so the
+    /// weight loops unroll and their divisions vectorise (each quotient is still one correctly
+    /// rounded division: bit-identical).
+    fn fill_k<const K: usize>(&mut self, n: usize, rows: &[Neighbour]) {
+        let k = if K == 0 { self.k } else { K };
+        debug_assert_eq!(k, self.k);
         // Entries of positions that are not full are never read, so stale values may stay.
         self.pos.resize(n * k, 0);
         self.weight.resize(n * k, 0.0);
@@ -195,14 +219,17 @@ impl Table {
         // exp(-d_i / d_1) is exactly exp(-1) whenever d_i == d_1 (always so for the first
         // neighbour): one call here instead of one per query, with identical bits.
         let exp_neg1 = std::hint::black_box(-1.0f64).exp();
-        for q in 0..n {
-            if !self.full[q] {
+        for (((row, w), pos), &full) in rows
+            .chunks_exact(k)
+            .zip(self.weight.chunks_exact_mut(k))
+            .zip(self.pos.chunks_exact_mut(k))
+            .zip(&self.full)
+        {
+            if !full {
                 continue;
             }
-            let row = &s.rows[q * k..(q + 1) * k];
-            let w = &mut self.weight[q * k..(q + 1) * k];
             weights_into(row, exp_neg1, w);
-            for (slot, nb) in self.pos[q * k..(q + 1) * k].iter_mut().zip(row) {
+            for (slot, nb) in pos.iter_mut().zip(row) {
                 *slot = nb.pos;
             }
         }
@@ -315,26 +342,60 @@ impl Table {
     /// [`FinitePairs`]' (bit-identical) while the loops run across targets. `None` when an
     /// estimate is not finite (then the general path decides).
     fn skills_fast(&self, m: &Manifold, tm: &TimeMajor, s: &mut Scratch) -> Option<Vec<f64>> {
-        let (k, dn) = (self.k, tm.count);
-        s.est_rows.clear();
-        s.row_times.clear();
-        for q in 0..m.len() {
-            if !self.full[q] {
-                continue;
-            }
-            let start = s.est_rows.len();
-            s.est_rows.resize(start + dn, 0.0);
-            let acc = &mut s.est_rows[start..];
-            for j in 0..k {
-                let w = self.weight[q * k + j];
-                let t = m.time(self.pos[q * k + j] as usize);
-                let row = &tm.vals[t * dn..(t + 1) * dn];
-                for (a, &v) in acc.iter_mut().zip(row) {
-                    *a += w * v;
-                }
-            }
-            s.row_times.push(m.time(q));
+        match tm.count {
+            1 => self.skills_fast_n::<1>(m, tm, s),
+            2 => self.skills_fast_n::<2>(m, tm, s),
+            3 => self.skills_fast_n::<3>(m, tm, s),
+            4 => self.skills_fast_n::<4>(m, tm, s),
+            5 => self.skills_fast_n::<5>(m, tm, s),
+            6 => self.skills_fast_n::<6>(m, tm, s),
+            7 => self.skills_fast_n::<7>(m, tm, s),
+            8 => self.skills_fast_n::<8>(m, tm, s),
+            SURROGATE_BLOCK => self.skills_fast_n::<SURROGATE_BLOCK>(m, tm, s),
+            _ => self.skills_fast_n::<0>(m, tm, s),
         }
+    }
+
+    /// [`Table::skills_fast`] with the number of targets fixed at compile time (`DN`; 0: read
+    /// it from `tm`), so the loops across targets unroll and vectorise for the common counts.
+    /// Each target's sums are the same additions in the same order for every `DN`.
+    fn skills_fast_n<const DN: usize>(
+        &self,
+        m: &Manifold,
+        tm: &TimeMajor,
+        s: &mut Scratch,
+    ) -> Option<Vec<f64>> {
+        let k = self.k;
+        let dn = if DN == 0 { tm.count } else { DN };
+        debug_assert_eq!(dn, tm.count);
+        let n = m.len();
+        s.est_rows.clear();
+        s.est_rows.resize(n * dn, 0.0);
+        s.row_times.clear();
+        let mut filled = 0;
+        if k > 0 {
+            for (q, ((ws, ps), _)) in self
+                .weight
+                .chunks_exact(k)
+                .zip(self.pos.chunks_exact(k))
+                .zip(&self.full)
+                .enumerate()
+                .take(n)
+                .filter(|(_, (_, full))| **full)
+            {
+                let acc = &mut s.est_rows[filled * dn..(filled + 1) * dn];
+                for (&w, &p) in ws.iter().zip(ps) {
+                    let t = m.time(p as usize);
+                    let row = &tm.vals[t * dn..(t + 1) * dn];
+                    for (a, &v) in acc.iter_mut().zip(row) {
+                        *a += w * v;
+                    }
+                }
+                s.row_times.push(m.time(q));
+                filled += 1;
+            }
+        }
+        s.est_rows.truncate(filled * dn);
         if !s.est_rows.iter().all(|v| v.is_finite()) {
             return None;
         }
@@ -347,6 +408,8 @@ impl Table {
             v.resize(dn, 0.0);
         }
         let [sa, sb, sxx, syy, sxy] = &mut s.sums;
+        let (sa, sb) = (&mut sa[..dn], &mut sb[..dn]);
+        let (sxx, syy, sxy) = (&mut sxx[..dn], &mut syy[..dn], &mut sxy[..dn]);
         for (est, &t) in s.est_rows.chunks_exact(dn).zip(&s.row_times) {
             let obs = &tm.vals[t * dn..(t + 1) * dn];
             for d in 0..dn {
@@ -389,6 +452,48 @@ impl Table {
     ) -> f64 {
         self.estimate(index, library, target, lag, s, None);
         s.pairs.r()
+    }
+}
+
+/// Buffers for one block of replicate tables built by one multi-library walk.
+#[derive(Default)]
+struct Multi {
+    tables: Vec<Table>,
+    rows: Vec<Vec<Neighbour>>,
+    full: Vec<Vec<bool>>,
+    masks: Vec<u64>,
+}
+
+impl Multi {
+    /// Lag-0 skills of every target for each library, one row per library: the same as
+    /// [`Table::rebuild`] then [`Table::skills_fused`] per library, bit for bit.
+    fn run(
+        &mut self,
+        lists: &SortedLists,
+        libs: &[Library],
+        k: usize,
+        columns: &[&[f64]],
+        tm: &TimeMajor,
+        s: &mut Scratch,
+    ) -> Vec<Vec<f64>> {
+        let nr = libs.len();
+        self.rows.resize_with(nr, Vec::new);
+        self.full.resize_with(nr, Vec::new);
+        self.tables.resize_with(nr, || Table::empty(k));
+        let refs: Vec<&Library> = libs.iter().collect();
+        lists.nearest_every_multi(&refs, k, &mut self.rows, &mut self.full, &mut self.masks);
+        let n = lists.manifold().len();
+        (0..nr)
+            .map(|r| {
+                let table = &mut self.tables[r];
+                table.k = k;
+                std::mem::swap(&mut table.full, &mut self.full[r]);
+                table.fill(n, &self.rows[r]);
+                let skills = table.skills_fused(lists, &libs[r], columns, tm, s);
+                std::mem::swap(&mut table.full, &mut self.full[r]);
+                skills
+            })
+            .collect()
     }
 }
 
@@ -605,7 +710,8 @@ pub fn cross_map_response(
         .copied()
         .filter(|&l| prefer_walk(n, l, emb.e))
         .min();
-    let lists = walk_min.map(|l| SortedLists::new(&m, plan.theiler, walk_depth(n, l, emb.e)));
+    let lists = walk_min
+        .map(|l| SortedLists::new(&m, plan.theiler, walk_depth(n, l, emb.e, raw.replicates)));
     let scan = ExactScan::new(&m, plan.theiler);
     let index_for = |l: usize| -> &dyn NeighbourIndex {
         match &lists {
@@ -615,23 +721,49 @@ pub fn cross_map_response(
     };
     let distinct_reps = |l: usize| if l >= n { 1 } else { raw.replicates };
 
-    // Every size but the largest: skill at lag 0 for each driver.
+    // Every size but the largest: skill at lag 0 for each driver. A unit is one replicate
+    // when scanning, and a block of up to MULTI_MAX replicates served by one walk per query
+    // when walking; `unit_skills` holds one row per (size, replicate) either way.
     let last = sizes.len() - 1;
-    let units: Vec<(usize, usize)> = (0..last)
-        .flat_map(|li| (0..distinct_reps(sizes[li])).map(move |r| (li, r)))
+    let units: Vec<(usize, usize, usize)> = (0..last)
+        .flat_map(|li| {
+            let reps = distinct_reps(sizes[li]);
+            let block = if lists.is_some() && prefer_walk(n, sizes[li], emb.e) {
+                reps.div_ceil(reps.div_ceil(MULTI_MAX))
+            } else {
+                1
+            };
+            (0..reps)
+                .step_by(block)
+                .map(move |r| (li, r, (r + block).min(reps)))
+        })
         .collect();
     let unit_skills: Vec<Vec<f64>> = units
         .par_iter()
         .map_init(
-            || (Scratch::default(), Table::empty(k)),
-            |(s, table), &(li, r)| {
+            || (Scratch::default(), Table::empty(k), Multi::default()),
+            |(s, table, multi), &(li, r0, r1)| {
                 let l = sizes[li];
-                let lib = draw_library(raw.seed, response, l, r, n);
-                let index = index_for(l);
-                table.rebuild(index, &lib, k, s);
-                table.skills_fused(index, &lib, &columns, &time_major, s)
+                match &lists {
+                    Some(lists) if prefer_walk(n, l, emb.e) => {
+                        let libs: Vec<Library> = (r0..r1)
+                            .map(|r| draw_library(raw.seed, response, l, r, n))
+                            .collect();
+                        multi.run(lists, &libs, k, &columns, &time_major, s)
+                    }
+                    _ => {
+                        let lib = draw_library(raw.seed, response, l, r0, n);
+                        table.rebuild(&scan, &lib, k, s);
+                        vec![table.skills_fused(&scan, &lib, &columns, &time_major, s)]
+                    }
+                }
             },
         )
+        .flatten()
+        .collect();
+    let unit_li: Vec<usize> = units
+        .iter()
+        .flat_map(|&(li, r0, r1)| std::iter::repeat_n(li, r1 - r0))
         .collect();
 
     // The largest size: tables kept for lags and surrogates.
@@ -734,7 +866,7 @@ pub fn cross_map_response(
                 let row: Vec<f64> = (0..raw.replicates)
                     .map(|r| unit_skills[cursor + if reps == 1 { 0 } else { r }][di])
                     .collect();
-                debug_assert!(units[cursor].0 == li);
+                debug_assert!(unit_li[cursor] == li);
                 cursor += reps;
                 skills.push(row);
             }

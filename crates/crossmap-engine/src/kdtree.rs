@@ -198,20 +198,22 @@ impl<'m> KdTree<'m> {
 
     /// Per query, the `depth` nearest positions outside the Theiler window in (distance,
     /// position) order, as [`crate::neighbours::SortedLists`] stores them; `row` receives them
-    /// and the count is returned.
+    /// with their distances in `dists`, and the count is returned.
     pub(crate) fn sorted_row(
         &self,
         q: usize,
         depth: usize,
         row: &mut [u32],
+        dists: &mut [f64],
         heap: &mut BinaryHeap<u128>,
         stack: &mut Vec<u32>,
     ) -> usize {
         self.search(q, depth, None, &|_| true, heap, stack);
         let mut keys = std::mem::take(heap).into_vec();
         keys.sort_unstable();
-        for (slot, &key) in row.iter_mut().zip(&keys) {
+        for ((slot, d), &key) in row.iter_mut().zip(dists.iter_mut()).zip(&keys) {
             *slot = key as u32;
+            *d = f64::from_bits((key >> 32) as u64).sqrt();
         }
         let cnt = keys.len();
         keys.clear();
