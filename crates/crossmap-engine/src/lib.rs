@@ -44,9 +44,9 @@
 //! ```
 #![deny(missing_docs)]
 
+mod choose;
 mod crossmap;
 mod embed;
-mod kdtree;
 pub mod neighbours;
 mod params;
 pub mod season;
@@ -55,14 +55,15 @@ mod simplex;
 mod stats;
 pub mod surrogate;
 
+pub use choose::{
+    DEFAULT_MAX_E, EmbeddingSettings, MAX_AUTO_TAU, MIN_AUTO_E, PARSIMONY_TOLERANCE,
+    auto_tau_bound, choose_embedding, choose_tau,
+};
 pub use crossmap::{
-    CrossMapEstimate, SurrogateBases, cross_map_all, cross_map_response, cross_map_with_library,
-    draw_library, simplex_weights,
+    CrossMapEstimate, cross_map_all, cross_map_response, cross_map_with_library, draw_library,
+    simplex_weights,
 };
-pub use embed::{
-    DEFAULT_MAX_E, Embedding, EmbeddingSettings, MAX_AUTO_TAU, MIN_AUTO_E, Manifold,
-    PARSIMONY_TOLERANCE, auto_tau_bound, choose_embedding, choose_tau, default_theiler,
-};
+pub use embed::{Embedding, Manifold, default_theiler};
 pub use params::{
     CrossMapParams, DEFAULT_LIBRARY_COUNT, DEFAULT_REPLICATES, LibrarySizes, MAX_AUTO_LAG,
     ResponsePlan, ValidParams, default_max_lag, log_spaced,
@@ -70,6 +71,7 @@ pub use params::{
 pub use season::{Season, detect_season, season_at, season_for};
 pub use simplex::{Forecast, simplex_forecast};
 pub use stats::pearson;
+pub use surrogate::SurrogateBases;
 
 /// The ensemble and extras for one ordered pair driver -> response: the driver's values are
 /// estimated from neighbours in the response's delay embedding.

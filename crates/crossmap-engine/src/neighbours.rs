@@ -6,7 +6,8 @@
 //! window, `|t - t_query| <= window` (Theiler 1986).
 
 use crate::embed::{Manifold, sq_dist};
-pub use crate::kdtree::KdTree;
+mod kdtree;
+pub use kdtree::KdTree;
 use rayon::prelude::*;
 
 /// One neighbour: its manifold position and Euclidean distance to the query.

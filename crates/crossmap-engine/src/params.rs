@@ -1,8 +1,8 @@
 //! Cross-map parameters and their one-time validation against the data.
 
 use crate::EngineError;
-use crate::crossmap::SurrogateBases;
 use crate::embed::{Embedding, default_theiler};
+use crate::surrogate::SurrogateBases;
 use std::sync::Arc;
 
 /// Default number of log-spaced library sizes.
@@ -104,8 +104,13 @@ impl ValidParams {
     /// without surrogates. Units given other series notice (by a fingerprint of the values)
     /// and prepare their own.
     pub fn with_surrogate_bases(mut self, series: &[Vec<f64>]) -> Self {
-        self.surrogate_bases =
-            (self.raw.surrogates > 0).then(|| Arc::new(SurrogateBases::new(series, &self.raw)));
+        self.surrogate_bases = (self.raw.surrogates > 0).then(|| {
+            Arc::new(SurrogateBases::new(
+                series,
+                self.raw.period,
+                self.raw.seasonal,
+            ))
+        });
         self
     }
 }

@@ -1,9 +1,10 @@
 //! Surrogate drivers: Ebisuzaki (1997) phase randomisation and a seasonal variant
 //! (Deyle et al. 2016).
 
-use crate::season::mean_cycle;
+use crate::season::{mean_cycle, season_for};
 use crate::seeds::unit;
 use rand_chacha::ChaCha8Rng;
+use rayon::prelude::*;
 use realfft::num_complex::Complex;
 use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
 use std::sync::Arc;
@@ -169,6 +170,94 @@ impl std::fmt::Debug for SeasonalSpectrum {
         f.debug_struct("SeasonalSpectrum")
             .field("samples", &self.cycle.len())
             .finish_non_exhaustive()
+    }
+}
+
+/// One variable prepared for its surrogates: its cycle, and the spectra every one of its
+/// phase-randomised and seasonal surrogates is drawn from.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct DriverBasis {
+    pub(crate) plain: Spectrum,
+    /// `None`: no cycle to keep (or seasonal surrogates switched off), so a seasonal surrogate
+    /// is a phase-randomised one.
+    pub(crate) seasonal: Option<SeasonalSpectrum>,
+}
+
+/// Every variable of a table prepared once for surrogates: its dominant cycle (detected, or at
+/// the known period), mean cycle and spectra ([`SurrogateMaker::spectrum`],
+/// [`SurrogateMaker::seasonal_spectrum`]). Without it each work unit would detect the cycle of
+/// every driver again, 380 detections instead of 20 at 20 variables. Results are the same, bit
+/// for bit, as preparing each driver inside its unit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SurrogateBases {
+    fingerprint: u64,
+    period: Option<usize>,
+    seasonal: bool,
+    drivers: Vec<DriverBasis>,
+}
+
+/// A hash of every value's bits, to check that prepared bases belong to the series given.
+fn fingerprint(series: &[Vec<f64>]) -> u64 {
+    let mut h = 0xcbf2_9ce4_8422_2325_u64 ^ series.len() as u64;
+    for s in series {
+        h = (h ^ s.len() as u64).wrapping_mul(0x0000_0100_0000_01b3);
+        for v in s {
+            h = (h ^ v.to_bits()).wrapping_mul(0x0000_0100_0000_01b3);
+            h ^= h >> 29;
+        }
+    }
+    h
+}
+
+impl SurrogateBases {
+    /// Prepare every variable of `series` for surrogates that keep the cycle at `period` (or
+    /// each variable's detected one) when `seasonal` (rayon across variables).
+    pub fn new(series: &[Vec<f64>], period: Option<usize>, seasonal: bool) -> Self {
+        let n = series.first().map_or(0, Vec::len);
+        let maker = SurrogateMaker::new(n);
+        let drivers = series
+            .par_iter()
+            .map(|x| DriverBasis::new(&maker, x, period, seasonal))
+            .collect();
+        Self {
+            fingerprint: fingerprint(series),
+            period,
+            seasonal,
+            drivers,
+        }
+    }
+
+    /// Whether these bases were prepared from exactly `series` with these settings.
+    pub(crate) fn fits(&self, series: &[Vec<f64>], period: Option<usize>, seasonal: bool) -> bool {
+        self.drivers.len() == series.len()
+            && self.period == period
+            && self.seasonal == seasonal
+            && self.fingerprint == fingerprint(series)
+    }
+
+    /// Variable `d`'s prepared basis.
+    pub(crate) fn driver(&self, d: usize) -> &DriverBasis {
+        &self.drivers[d]
+    }
+}
+
+impl DriverBasis {
+    pub(crate) fn new(
+        maker: &SurrogateMaker,
+        x: &[f64],
+        period: Option<usize>,
+        seasonal: bool,
+    ) -> Self {
+        let seasonal = match season_for(x, period) {
+            Some(season) if seasonal && season.has_cycle() => {
+                Some(maker.seasonal_spectrum(x, season.period))
+            }
+            _ => None,
+        };
+        Self {
+            plain: maker.spectrum(x),
+            seasonal,
+        }
     }
 }
 

@@ -10,8 +10,8 @@
 //! computed distance of any point in the box, and a point at an equal distance (which could win
 //! on position) is never skipped.
 
+use super::{Library, Neighbour, NeighbourIndex, size_rows};
 use crate::embed::{Manifold, sq_dist};
-use crate::neighbours::{Library, Neighbour, NeighbourIndex, size_rows};
 use std::collections::BinaryHeap;
 
 /// Points per leaf.
@@ -286,8 +286,8 @@ impl NeighbourIndex for KdTree<'_> {
 
 #[cfg(test)]
 mod tests {
+    use super::super::ExactScan;
     use super::*;
-    use crate::neighbours::ExactScan;
     use crate::seeds::{keyed_rng, sample_without_replacement, unit};
 
     fn manifold(n: usize, e: usize, seed: u64, rounded: bool) -> Manifold {
