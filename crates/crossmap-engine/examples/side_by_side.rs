@@ -124,8 +124,8 @@ fn main() {
         "threads": rayon::current_num_threads(),
         "runs": runs,
         "cpu_seconds_per_run": cpu / f64::from(runs),
-        "library_sizes": params.plans.iter().map(|p| p.library_sizes.clone()).collect::<Vec<_>>(),
-        "theiler": params.plans.iter().map(|p| p.theiler).collect::<Vec<_>>(),
+        "library_sizes": params.plans().iter().map(|p| p.library_sizes.clone()).collect::<Vec<_>>(),
+        "theiler": params.plans().iter().map(|p| p.theiler).collect::<Vec<_>>(),
         "full_library_skills": full,
     });
     println!("{out}");

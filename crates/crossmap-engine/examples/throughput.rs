@@ -87,7 +87,7 @@ fn main() {
         .unwrap();
     let pairs = cross_map_all(&series, &embeddings, &params, &|_| {});
     let total = start.elapsed();
-    let n_sizes = params.plans[0].library_sizes.len();
+    let n_sizes = params.plans()[0].library_sizes.len();
     println!(
         "workload: {vars} variables x {points} points, {} ordered pairs, {n_sizes} library sizes x {replicates} replicates, {surrogates} surrogates, E {}",
         pairs.len(),

@@ -606,6 +606,8 @@ pub fn cross_map_response(
     response: usize,
     params: &ValidParams,
 ) -> Vec<PairEnsemble> {
+    // ValidParams cannot be forged or changed, but it can be handed other series than it was
+    // checked against: that is a caller's bug, so it stops here rather than mislabel.
     assert_eq!(series.len(), embeddings.len(), "one embedding per series");
     assert_eq!(
         params.plans.len(),

@@ -84,21 +84,40 @@ pub struct ResponsePlan {
 }
 
 /// Parameters checked against the data (library sizes resolved per response manifold).
+///
+/// Only [`CrossMapParams::validate`] makes one, and its fields cannot be changed afterwards, so
+/// every plan in it holds for the series it was checked against.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ValidParams {
-    /// The raw parameters, as given.
-    pub raw: CrossMapParams,
-    /// Series length the parameters were checked against.
-    pub n_points: usize,
-    /// One plan per variable, used when that variable is the response.
-    pub plans: Vec<ResponsePlan>,
-    /// Every variable's cycle and spectra, prepared once for the surrogates
-    /// ([`ValidParams::with_surrogate_bases`]); `None` prepares each driver inside each work
-    /// unit (the same results, more work).
-    pub surrogate_bases: Option<Arc<SurrogateBases>>,
+    pub(crate) raw: CrossMapParams,
+    pub(crate) n_points: usize,
+    pub(crate) plans: Vec<ResponsePlan>,
+    /// `None` prepares each driver inside each work unit (the same results, more work).
+    pub(crate) surrogate_bases: Option<Arc<SurrogateBases>>,
 }
 
 impl ValidParams {
+    /// The raw parameters, as given.
+    pub fn raw(&self) -> &CrossMapParams {
+        &self.raw
+    }
+
+    /// Series length the parameters were checked against.
+    pub fn n_points(&self) -> usize {
+        self.n_points
+    }
+
+    /// One plan per variable, used when that variable is the response.
+    pub fn plans(&self) -> &[ResponsePlan] {
+        &self.plans
+    }
+
+    /// Every variable's cycle and spectra, prepared once for the surrogates
+    /// ([`ValidParams::with_surrogate_bases`]).
+    pub fn surrogate_bases(&self) -> Option<&SurrogateBases> {
+        self.surrogate_bases.as_deref()
+    }
+
     /// Prepare every variable's cycle, mean cycle and spectra once for these `series` (the
     /// ones the parameters were validated for), so that no work unit repeats them. A no-op
     /// without surrogates. Units given other series notice (by a fingerprint of the values)

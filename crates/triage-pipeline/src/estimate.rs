@@ -46,11 +46,11 @@ impl WorkEstimate {
     ) -> Self {
         let n = embeddings.len();
         let drivers = n.saturating_sub(1) as f64;
-        let reps = params.raw.replicates as f64;
-        let surrogates = 2.0 * params.raw.surrogates as f64;
+        let reps = params.raw().replicates as f64;
+        let surrogates = 2.0 * params.raw().surrogates as f64;
         let (mut values, mut estimates, mut biggest_tables) = (0.0, 0.0, 0.0_f64);
         for &u in units {
-            let plan = &params.plans[u];
+            let plan = &params.plans()[u];
             let usable = plan.usable as f64;
             let lags = (2 * plan.max_lag + 1) as f64;
             let sizes = plan.library_sizes.len() as f64;
@@ -145,7 +145,7 @@ mod tests {
         let units: Vec<usize> = (0..4).collect();
         let w = WorkEstimate::of_units(&units, &embeddings, &params, 2);
         assert_eq!(w.pairs, 12);
-        let plan = &params.plans[0];
+        let plan = &params.plans()[0];
         let per_pair = plan.library_sizes.len() * 10 + 2 * plan.max_lag + 1 + 10;
         assert_eq!(w.values, (12 * per_pair) as u64);
         let half = WorkEstimate::of_units(&units[..2], &embeddings, &params, 2);

@@ -147,7 +147,7 @@ impl Prepared {
         }
         let short: Vec<String> = names
             .iter()
-            .zip(&self.params.plans)
+            .zip(self.params.plans())
             .filter(|(_, p)| p.usable < SHORT_SERIES)
             .map(|(n, p)| format!("{n} {}", p.usable))
             .collect();
@@ -1002,7 +1002,7 @@ pub fn settings_record(
 ) -> serde_json::Value {
     let plans: Vec<serde_json::Value> = names
         .iter()
-        .zip(&params.plans)
+        .zip(params.plans())
         .map(|(n, p)| {
             serde_json::json!({
                 "response": n, "usable_vectors": p.usable, "library_sizes": p.library_sizes,
@@ -1011,7 +1011,7 @@ pub fn settings_record(
         })
         .collect();
     let mut record = analysis_settings_json(settings);
-    record["n_points"] = serde_json::json!(params.n_points);
+    record["n_points"] = serde_json::json!(params.n_points());
     record["per_response"] = serde_json::json!(plans);
     record
 }
