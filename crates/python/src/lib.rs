@@ -262,7 +262,7 @@ fn load_model(model: Option<&Path>) -> anyhow::Result<LoadedModel> {
 
 /// `scan`: `data` (CSV bytes, named `source` in messages) or the file at `path`.
 #[pyfunction]
-#[pyo3(signature = (data, path, source, time_column, engine, review_band, model, over_budget, progress=None, note=None))]
+#[pyo3(signature = (data, path, source, time_column, engine, review_band, model, over_budget, progress=None, note=None, delimiter=None, decimal_comma=false, uneven_steps=None, drivers=None, responses=None))]
 #[allow(clippy::too_many_arguments)]
 fn scan(
     py: Python<'_>,
@@ -276,8 +276,17 @@ fn scan(
     over_budget: bool,
     progress: Option<&Bound<'_, PyAny>>,
     note: Option<&Bound<'_, PyAny>>,
+    delimiter: Option<String>,
+    decimal_comma: bool,
+    uneven_steps: Option<String>,
+    drivers: Option<Vec<String>>,
+    responses: Option<Vec<String>>,
 ) -> PyResult<Run> {
     let engine = engine_settings(engine)?;
+    let delimiter = delimiter
+        .map(|d| triage_pipeline::settings::parse_delimiter(&d))
+        .transpose()
+        .map_err(|e| TriageError::new_err(format!("delimiter: {e}")))?;
     let mut read = Vec::new();
     read.extend(path.clone());
     read.extend(model.clone());
@@ -285,8 +294,13 @@ fn scan(
         let policy = policy(&review_band)?;
         let model = load_model(model.as_deref())?;
         let choice = run::InputChoice {
-            table: TableSettings::with_time_column(time_column.as_deref()),
-            ..run::InputChoice::default()
+            table: TableSettings {
+                delimiter,
+                decimal_comma,
+                uneven_steps: uneven_steps.unwrap_or_else(|| "refuse".into()),
+                ..TableSettings::with_time_column(time_column.as_deref())
+            },
+            select: triage_pipeline::PairSelection { drivers, responses },
         };
         let prepared = match (&data, &path) {
             (_, Some(p)) => run::prepare(

@@ -371,3 +371,26 @@ def test_train_and_evaluate_equal_the_command_line(tmp_path, cli):
         check_exact=True)
     assert e["metrics"] == json.loads((tmp_path / "cli-eval" / "metrics.json").read_text())
     assert "rule of thumb" in e["summary"]
+
+
+def test_a_semicolon_export_and_a_pair_choice_equal_the_command_line(tmp_path, cli):
+    # The demo table written as a spreadsheet export: semicolons and decimal commas.
+    text = DEMO.read_text().replace(",", ";").replace(".", ",")
+    data = tmp_path / "export.csv"
+    data.write_text(text)
+    out = tmp_path / "cli"
+    cli("scan", data, "--out", out, "--delimiter", ";", "--decimal-comma",
+        "--drivers", "sandeel_index,wind_index", "--responses", "puffin_chicks", *QUICK_FLAGS)
+    result = ccm_triage.scan(str(data), delimiter=";", decimal_comma=True,
+                             drivers=["sandeel_index", "wind_index"],
+                             responses="puffin_chicks", **QUICK)
+    assert_same_tables(result, out)
+    assert sorted(zip(result.labels["driver"], result.labels["response"])) == [
+        ("sandeel_index", "puffin_chicks"), ("wind_index", "puffin_chicks")]
+    assert result.run["selection"]["drivers"] == ["sandeel_index", "wind_index"]
+    # The reading options describe a file, not data already in memory.
+    with pytest.raises(TriageError, match="delimiter"):
+        ccm_triage.scan(demo_frame(), delimiter=";", **QUICK)
+    with pytest.raises(TriageError, match="uneven"):
+        ccm_triage.scan(str(data), delimiter=";", decimal_comma=True, uneven_steps="sometimes",
+                        **QUICK)

@@ -25,7 +25,7 @@ import json
 import math
 import os
 import sys
-from typing import Any, Callable, Dict, Mapping, Optional, Sequence, Tuple, Union
+from typing import Any, Callable, Dict, List, Mapping, Optional, Sequence, Tuple, Union
 
 import numpy as np
 
@@ -299,7 +299,10 @@ def scan(data: Any, time: Optional[str] = None, seed: int = 1, *, dim: Optional[
          no_seasonal_surrogates: bool = False,
          review_band: Union[None, str, Tuple[float, float]] = None,
          model: Union[None, str, os.PathLike] = None, over_budget: bool = False,
-         progress: Union[bool, Callable[[str, int, int], Any]] = False) -> Result:
+         progress: Union[bool, Callable[[str, int, int], Any]] = False,
+         drivers: Optional[Sequence[str]] = None, responses: Optional[Sequence[str]] = None,
+         delimiter: Optional[str] = None, decimal_comma: bool = False,
+         uneven_steps: str = "refuse") -> Result:
     """Label every ordered pair of series in a table (``ccm-triage scan``).
 
     Parameters
@@ -350,6 +353,17 @@ def scan(data: Any, time: Optional[str] = None, seed: int = 1, *, dim: Optional[
     progress : bool or callable
         ``True`` draws a bar on stderr and prints the work estimate; a callable gets
         ``(stage, done, total)`` as the run advances.
+    drivers, responses : list of str, optional
+        Scan only these drivers and these responses (``--drivers``, ``--responses``; default:
+        every series). Only the manifolds the chosen pairs need are computed.
+    delimiter : str, optional
+        Field separator of a file given by path (``--delimiter``: ``,`` by default, ``;``,
+        ``tab``, ``|`` or another single character).
+    decimal_comma : bool
+        Numbers in a file given by path use a decimal comma (``--decimal-comma``).
+    uneven_steps : str
+        When the time axis has uneven steps: ``"refuse"`` (default), ``"fill-gaps"`` or
+        ``"as-equal"`` (``--uneven-steps``).
 
     Returns
     -------
@@ -365,12 +379,30 @@ def scan(data: Any, time: Optional[str] = None, seed: int = 1, *, dim: Optional[
         On Ctrl-C; no file is written.
     """
     table, path, source = _source(data)
+    if path is None and (delimiter is not None or decimal_comma):
+        raise TriageError("delimiter and decimal_comma describe a file: give the table as a "
+                          "path, or pass the data itself without them")
     engine = _engine(seed, dim, max_dim, delay, sizes, replicates, theiler_window, max_lag,
                      surrogates, period, no_seasonal_surrogates)
     native = _native.scan(table, path, source, time, engine, _band(review_band),
                           None if model is None else os.fspath(model), over_budget,
-                          _progress(progress), _note(progress))
+                          _progress(progress), _note(progress), delimiter=delimiter,
+                          decimal_comma=decimal_comma, uneven_steps=uneven_steps,
+                          drivers=_names(drivers, "drivers"),
+                          responses=_names(responses, "responses"))
     return Result(native)
+
+
+def _names(names: Optional[Sequence[str]], what: str) -> Optional[List[str]]:
+    """A list of series names, or None for every series; a lone string is one name."""
+    if names is None:
+        return None
+    if isinstance(names, str):
+        return [names]
+    out = list(names)
+    if not all(isinstance(n, str) for n in out):
+        raise TriageError(f"{what}: give series names as strings")
+    return out
 
 
 def label(curves: Any, *, review_band: Union[None, str, Tuple[float, float]] = None,

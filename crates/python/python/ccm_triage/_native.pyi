@@ -32,6 +32,11 @@ def scan(
     over_budget: bool,
     progress: _Progress = None,
     note: _Note = None,
+    delimiter: Optional[str] = None,
+    decimal_comma: bool = False,
+    uneven_steps: Optional[str] = None,
+    drivers: Optional[List[str]] = None,
+    responses: Optional[List[str]] = None,
 ) -> Run: ...
 def label(
     data: Optional[bytes],
