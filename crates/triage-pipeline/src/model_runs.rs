@@ -180,8 +180,7 @@ pub fn train_spec(
         suite_name: suite.as_ref().map(|s| s.1.clone()).unwrap_or_default(),
         ..FitConfig::default()
     };
-    let heads = 1 + usize::from(!cfg.curve_only_names.is_empty());
-    observer.begin("fitting", (heads * cfg.candidates.len()) as u64);
+    observer.begin("fitting", cfg.fit_steps() as u64);
     let bundle =
         verdict_model::fit_with_progress(&set, suite.as_ref().map(|s| &s.0), &cfg, &|done, _| {
             observer.advance(done as u64)

@@ -92,6 +92,15 @@ pub struct FitConfig {
     pub suite_name: String,
 }
 
+impl FitConfig {
+    /// Steps a fit reports to [`fit_with_progress`](crate::fit_with_progress): one per
+    /// candidate of each head (the full head, and the curve-only head when it has columns).
+    pub fn fit_steps(&self) -> usize {
+        let heads = 1 + usize::from(!self.curve_only_names.is_empty());
+        heads * self.candidates.len()
+    }
+}
+
 impl Default for FitConfig {
     fn default() -> Self {
         FitConfig {

@@ -357,8 +357,7 @@ pub fn fit_with_progress(
     step: &(dyn Fn(usize, usize) + Sync),
 ) -> Result<ModelBundle, ModelError> {
     validate(set, cfg)?;
-    let heads = 1 + usize::from(!cfg.curve_only_names.is_empty());
-    let total = heads * cfg.candidates.len();
+    let total = cfg.fit_steps();
     let done = std::sync::atomic::AtomicUsize::new(0);
     let step = &|| {
         step(
