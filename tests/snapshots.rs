@@ -8,6 +8,7 @@
 //! last bits) is recorded by rerunning with `UPDATE_SNAPSHOTS=1` and reviewing the diff.
 
 mod common;
+mod support;
 
 use std::path::Path;
 
@@ -79,17 +80,8 @@ fn small_seeded_scan_matches_its_snapshots() {
         .arg(&data)
         .arg("--out")
         .arg(&out)
-        .args([
-            "--seed",
-            "4",
-            "--replicates",
-            "10",
-            "--sizes",
-            "5",
-            "--surrogates",
-            "5",
-            "--quiet",
-        ])
+        .args(["--seed", "4"])
+        .args(support::SMALL)
         .assert()
         .success();
     let read = |f: &str| std::fs::read_to_string(out.join(f)).unwrap();
