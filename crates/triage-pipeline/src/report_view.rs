@@ -212,10 +212,9 @@ pub fn report_view(
             seasonal_surrogate_skills: rec.evidence.seasonal.as_ref().map(|s| s.skills.clone()),
             key_features: KEY_FEATURES
                 .iter()
-                .map(|&(f, label)| (label, rec.features[f.index()]))
-                .zip(KEY_FEATURES)
-                .filter(|((_, v), (f, _))| shown(*f, *v))
-                .map(|((label, v), _)| (label.to_string(), v))
+                .map(|&(f, label)| (f, label, rec.features[f.index()]))
+                .filter(|&(f, _, v)| shown(f, v))
+                .map(|(_, label, v)| (label.to_string(), v))
                 .collect(),
             decision: None,
             answer_key: None,
