@@ -42,16 +42,15 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
         triage_pipeline::table_rows(&outcome.names, &outcome.records, &outcome.judgements);
     let (mut agree, mut wrong, mut review) = (0, 0, 0);
     for row in &mut rows {
-        let truth = key
+        let truth = *key
             .get(&(row.driver.clone(), row.response.clone()))
-            .cloned()
             .with_context(|| {
                 format!(
                     "answer key has no row for {} -> {}",
                     row.driver, row.response
                 )
             })?;
-        let causal = matches!(truth.as_str(), "direct" | "indirect");
+        let causal = truth.is_causal();
         let agrees = match row.verdict {
             VerdictKind::Review => {
                 review += 1;
@@ -67,7 +66,7 @@ pub fn run(args: DemoArgs, quiet: bool) -> anyhow::Result<()> {
             _ => {}
         }
         row.flagged = agrees == "NO";
-        row.extra = vec![truth, agrees.to_string()];
+        row.extra = vec![truth.as_str().to_string(), agrees.to_string()];
     }
     let options = TableOptions {
         extra_columns: vec!["answer key".into(), "agrees with key".into()],
@@ -103,10 +102,9 @@ fn answer_key() -> anyhow::Result<AnswerKey> {
         let f: Vec<&str> = line.split(',').collect();
         anyhow::ensure!(f.len() >= 3, "answer key row `{line}` is malformed");
         let k = f.len();
-        rows.insert(
-            (f[k - 3].to_string(), f[k - 2].to_string()),
-            f[k - 1].to_string(),
-        );
+        let label = verdict_model::FineLabel::parse(f[k - 1])
+            .with_context(|| format!("answer key row `{line}` has an unknown label"))?;
+        rows.insert((f[k - 3].to_string(), f[k - 2].to_string()), label);
     }
     Ok(rows)
 }

@@ -20,7 +20,7 @@ use crate::cli::{FeaturesArgs, LabelArgs, MergeArgs, ScanArgs};
 use crate::progress::Terminal;
 
 /// The known label of each pair, by (driver, response).
-pub type AnswerKey = std::collections::BTreeMap<(String, String), String>;
+pub type AnswerKey = std::collections::BTreeMap<(String, String), verdict_model::FineLabel>;
 
 pub fn scan(args: ScanArgs, quiet: bool) -> anyhow::Result<()> {
     if let Some(text) = &args.shard {

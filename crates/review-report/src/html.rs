@@ -432,8 +432,8 @@ fn matrix(
                     let (fill, ink) = shade(p.p_causal);
                     let key = p
                         .answer_key
-                        .as_deref()
-                        .map(|key| format!(", answer key: {}", esc(key)))
+                        .as_ref()
+                        .map(|key| format!(", answer key: {}", esc(&key.label)))
                         .unwrap_or_default();
                     put!(
                         out,
@@ -702,7 +702,7 @@ fn panel(
         put!(
             out,
             "<p class=\"key-answer\">Answer key (the simulated truth): <strong>{}</strong>{agreement}.</p>",
-            esc(key)
+            esc(&key.label)
         );
     }
     if p.reasons.is_empty() {

@@ -60,7 +60,7 @@ mod stats;
 mod table;
 
 pub use error::ReportError;
-pub use model::{EmbeddingRow, GivenDecision, PairView, ReportData, VerdictKind};
+pub use model::{EmbeddingRow, GivenDecision, KnownAnswer, PairView, ReportData, VerdictKind};
 pub use table::{DEFAULT_TABLE_ROWS, TableOptions, TableRow, verdict_table};
 
 /// The caution shown prominently at the top of every report (and reusable elsewhere).

@@ -119,14 +119,23 @@ pub struct PairView {
     /// model's verdict and used to start the page's decision form.
     pub decision: Option<GivenDecision>,
     /// The known answer for this pair when the data were simulated with an answer key (the
-    /// demo): `direct`, `indirect`, `confounded` or `independent`, shown beside the verdict.
-    pub answer_key: Option<String>,
+    /// demo), shown beside the verdict.
+    pub answer_key: Option<KnownAnswer>,
+}
+
+/// A pair's known answer: the simulator's label and whether it counts as causal.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct KnownAnswer {
+    /// `direct`, `indirect`, `confounded` or `independent`.
+    pub label: String,
+    /// Whether the label counts as causal (as the classifier is trained).
+    pub causal: bool,
 }
 
 impl PairView {
     /// Whether the verdict agrees with the answer key: `None` without a key or under review.
     pub fn agrees_with_key(&self) -> Option<bool> {
-        let causal = matches!(self.answer_key.as_deref()?, "direct" | "indirect");
+        let causal = self.answer_key.as_ref()?.causal;
         match self.verdict {
             VerdictKind::Review => None,
             VerdictKind::Causal => Some(causal),

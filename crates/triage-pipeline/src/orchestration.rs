@@ -485,7 +485,7 @@ pub struct Finished {
     pub report_options: review_report::RenderOptions,
     /// The known label of each pair by (driver, response), when the data come with an answer
     /// key (the demo): shown beside the verdicts in the report.
-    pub answer_key: Option<BTreeMap<(String, String), String>>,
+    pub answer_key: Option<BTreeMap<(String, String), verdict_model::FineLabel>>,
 }
 
 impl Finished {
@@ -539,16 +539,6 @@ impl Finished {
         )?)
     }
 
-    /// The skill figure of each pair as a standalone SVG (`plots/`), in the report's order,
-    /// at most [`MAX_PLOT_FILES`].
-    pub fn figures(&self) -> anyhow::Result<Vec<review_report::PairFigure>> {
-        Ok(review_report::pair_figures(
-            &self.view(),
-            &self.report_options,
-            MAX_PLOT_FILES,
-        )?)
-    }
-
     /// The report's view of the run: the pairs with their evidence, reviewer decisions and
     /// answer key.
     fn view(&self) -> review_report::ReportData {
@@ -577,7 +567,10 @@ impl Finished {
             for pair in &mut view.pairs {
                 pair.answer_key = key
                     .get(&(pair.driver.clone(), pair.response.clone()))
-                    .cloned();
+                    .map(|l| review_report::KnownAnswer {
+                        label: l.as_str().into(),
+                        causal: l.is_causal(),
+                    });
             }
         }
         view
@@ -610,18 +603,19 @@ pub fn finish(
     let judgements = judge(&pairs, &model.bundle, policy)?;
     let table = &p.table;
     let cycles = cycle_facts(&p.series, &p.settings);
+    let path = &p.manifest.input.path;
+    let input = InputRecord {
+        rows: Some(table.n_rows()),
+        time_column: table.time_column.clone(),
+        time_axis: time_axis_record(table),
+        warnings: Some(table.warnings.clone()),
+        series: Some(table.names.clone()),
+        missing_cells: Some(table.missing.clone()),
+        missing_cells_total: Some(table.total_missing()),
+        ..InputRecord::new(path, Some(absolute(Path::new(path))), &table.sha256)
+    };
+    let threads = Some(rayon::current_num_threads());
     let run = RunRecord {
-        command: command.to_string(),
-        input: InputRecord {
-            rows: Some(table.n_rows()),
-            time_column: table.time_column.clone(),
-            time_axis: time_axis_record(table),
-            warnings: Some(table.warnings.clone()),
-            series: Some(table.names.clone()),
-            missing_cells: Some(table.missing.clone()),
-            missing_cells_total: Some(table.total_missing()),
-            ..input_record(&p.manifest.input.path, &table.sha256)
-        },
         settings: Some(p.manifest.settings.clone()),
         selection: Some(SelectionRecord {
             drivers: p.manifest.flags["select"]["drivers"].clone(),
@@ -634,14 +628,9 @@ pub fn finish(
         }),
         embedding: Some(embedding_record(&p.series.names, &p.embeddings)),
         cycles: Some(cycles_record(&p.series.names, &cycles)),
-        pairs: pairs.len(),
         shards,
         decisions: decisions_record(decisions.as_ref()),
-        timing: Timing {
-            seconds: started.elapsed().as_secs_f64(),
-            threads: Some(rayon::current_num_threads()),
-        },
-        ..run_record_base(policy, model, started)
+        ..run_record(command, input, pairs.len(), threads, policy, model, started)
     };
     let facts = RunFacts {
         input_name: file_name(Path::new(&p.manifest.input.path)),
@@ -727,20 +716,10 @@ fn label_records(
     started: Instant,
 ) -> anyhow::Result<Finished> {
     let judgements = judge(&records, &model.bundle, policy)?;
-    let mut input = input_record(recorded_path, &sha);
     // Ensembles held in memory (the Python module) have no file to point at.
-    if !Path::new(recorded_path).exists() {
-        input.absolute_path = None;
-    }
-    let run = RunRecord {
-        input,
-        pairs: records.len(),
-        timing: Timing {
-            seconds: started.elapsed().as_secs_f64(),
-            threads: None,
-        },
-        ..run_record_base(policy, model, started)
-    };
+    let file = Path::new(recorded_path);
+    let input = InputRecord::new(recorded_path, file.exists().then(|| absolute(file)), &sha);
+    let run = run_record("label", input, records.len(), None, policy, model, started);
     let facts = RunFacts {
         input_name: file_name(Path::new(recorded_path)),
         input_sha256: Some(sha),
@@ -819,11 +798,16 @@ pub fn write_results(out: &OutputDir, finished: &Finished) -> anyhow::Result<()>
     for file in finished.tables(&csv_names) {
         out.export(file.as_ref())?;
     }
+    // One view serves the report and the standalone figures (plots/, in the report's order,
+    // at most MAX_PLOT_FILES).
+    let view = finished.view();
+    let options = &finished.report_options;
     out.export(&TextDocument {
         name: "report.html".into(),
-        text: finished.report_html()?,
+        text: review_report::render_html_with(&view, options)?,
     })?;
-    write_figures(out, &finished.figures()?)?;
+    let figures = review_report::pair_figures(&view, options, MAX_PLOT_FILES)?;
+    write_figures(out, &figures)?;
     out.export(&JsonDocument {
         name: "run.json".into(),
         value: &finished.run,
@@ -910,17 +894,26 @@ pub fn time_axis_record(table: &SeriesTable) -> Option<TimeAxisRecord> {
     })
 }
 
-/// The parts of run.json every labelling run has, for `started` (pairs, input and timing
-/// are the caller's).
-fn run_record_base(policy: &VerdictPolicy, model: &LoadedModel, started: Instant) -> RunRecord {
+/// The run record of a labelling run as every run has it; the parts only a scan has (its
+/// settings, pair choice, embeddings, cycles, shards) and the decisions are left for the caller.
+/// `threads` is recorded by runs that computed ensembles.
+fn run_record(
+    command: &str,
+    input: InputRecord,
+    pairs: usize,
+    threads: Option<usize>,
+    policy: &VerdictPolicy,
+    model: &LoadedModel,
+    started: Instant,
+) -> RunRecord {
     RunRecord {
         tool: "ccm-triage".into(),
         version: TOOL_VERSION.into(),
         commit: TOOL_COMMIT.into(),
         format: RUN_RECORD_FORMAT,
-        command: "label".into(),
+        command: command.into(),
         invocation: invocation_record(started),
-        input: input_record("", ""),
+        input,
         settings: None,
         selection: None,
         embedding: None,
@@ -928,29 +921,13 @@ fn run_record_base(policy: &VerdictPolicy, model: &LoadedModel, started: Instant
         model: model_record(model),
         feature_schema: SchemaRecord::current(),
         review_band: [policy.band.0, policy.band.1],
-        pairs: 0,
+        pairs,
         shards: None,
         decisions: None,
         timing: Timing {
-            seconds: 0.0,
-            threads: None,
+            seconds: started.elapsed().as_secs_f64(),
+            threads,
         },
-    }
-}
-
-/// The input as given and as an absolute path, with its checksum.
-fn input_record(path: &str, sha256: &str) -> InputRecord {
-    InputRecord {
-        path: path.to_string(),
-        absolute_path: Some(absolute(Path::new(path))),
-        sha256: sha256.to_string(),
-        rows: None,
-        time_column: None,
-        time_axis: None,
-        warnings: None,
-        series: None,
-        missing_cells: None,
-        missing_cells_total: None,
     }
 }
 

@@ -100,6 +100,25 @@ pub struct InputRecord {
     pub missing_cells_total: Option<usize>,
 }
 
+impl InputRecord {
+    /// The file as given, as an absolute path (`None` for a table held in memory) and by its
+    /// checksum; what only a series table has is left out, for the caller to add.
+    pub fn new(path: &str, absolute_path: Option<String>, sha256: &str) -> Self {
+        Self {
+            path: path.to_string(),
+            absolute_path,
+            sha256: sha256.to_string(),
+            rows: None,
+            time_column: None,
+            time_axis: None,
+            warnings: None,
+            series: None,
+            missing_cells: None,
+            missing_cells_total: None,
+        }
+    }
+}
+
 /// The time axis: kind, first and last time as written, usual step, uneven and filled steps.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct TimeAxisRecord {
@@ -243,18 +262,7 @@ mod tests {
                 working_directory: "/".into(),
                 started_at: "2026-01-01T00:00:00Z".into(),
             },
-            input: InputRecord {
-                path: "c.csv".into(),
-                absolute_path: None,
-                sha256: "ab".repeat(32),
-                rows: None,
-                time_column: None,
-                time_axis: None,
-                warnings: None,
-                series: None,
-                missing_cells: None,
-                missing_cells_total: None,
-            },
+            input: InputRecord::new("c.csv", None, &"ab".repeat(32)),
             settings: None,
             selection: None,
             embedding: None,

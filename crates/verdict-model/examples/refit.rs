@@ -24,10 +24,7 @@ fn read(path: &str, drop: &[&str]) -> TrainingSet {
         let f: Vec<&str> = line.split(',').collect();
         set.systems.push(f[0].to_string());
         set.families.push(f[1].to_string());
-        let label = FineLabel::ALL
-            .into_iter()
-            .find(|l| l.as_str() == f[2])
-            .expect("label");
+        let label = FineLabel::parse(f[2]).expect("label");
         set.labels.push(label);
         set.rows
             .push(keep.iter().map(|&k| f[k].parse::<f64>().ok()).collect());

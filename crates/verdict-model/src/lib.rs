@@ -99,6 +99,11 @@ impl FineLabel {
         CAUSAL_LABELS.contains(&self)
     }
 
+    /// The label written as `word` in `truth.csv` ([`FineLabel::as_str`]), if it is one.
+    pub fn parse(word: &str) -> Option<FineLabel> {
+        FineLabel::ALL.into_iter().find(|l| l.as_str() == word)
+    }
+
     /// The word used in `truth.csv`.
     pub fn as_str(self) -> &'static str {
         match self {
